@@ -1,0 +1,55 @@
+"""The ``bench`` command: a thin dispatcher over one module per subcommand.
+
+Each subcommand module exposes ``register(subparsers)``, which adds its parser
+and sets ``func``; ``main`` never special-cases a subcommand. Exit codes follow
+contracts.md: 0 success, 1 a scenario failed or errored, 2 invalid input.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+
+#: Subcommand modules, in the order ``bench --help`` lists them.
+SUBCOMMANDS = ("run", "check", "listing", "export")
+
+EXIT_OK, EXIT_FAILED, EXIT_INVALID = 0, 1, 2
+
+
+class UsageError(Exception):
+    """Bad input given on the command line: printed as one line, exit code 2."""
+
+
+def build_parser() -> argparse.ArgumentParser:
+    from bench import __version__
+
+    parser = argparse.ArgumentParser(
+        prog="bench",
+        description="Scenario test bench for legged-robot controllers (MuJoCo, headless).",
+    )
+    parser.add_argument("--version", action="version", version=f"quadruped-bench {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    for name in SUBCOMMANDS:
+        importlib.import_module(f"bench.cli.{name}").register(sub)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "func", None):
+        parser.print_help()
+        return EXIT_INVALID
+    try:
+        return int(args.func(args) or 0)
+    except UsageError as exc:
+        print(f"bench {args.command}: {exc}", file=sys.stderr)
+        return EXIT_INVALID
+    except KeyboardInterrupt:
+        print("bench: interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

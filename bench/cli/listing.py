@@ -1,0 +1,49 @@
+"""``bench list [scenarios|controllers|criteria]``: what is available, one per line."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+
+def register(sub) -> None:
+    p = sub.add_parser("list", help="list bundled scenarios, controllers or criteria",
+                       description="List what is available, one per line with a short description.")
+    p.add_argument("what", nargs="?", choices=["scenarios", "controllers", "criteria"], default="scenarios")
+    p.add_argument("--path", action="append", default=[], metavar="DIR",
+                   help="scenario folders to list (default: the bundled scenarios)")
+    p.set_defaults(func=run)
+
+
+def bundled_scenarios_dir() -> Path:
+    import bench
+
+    here = Path(bench.__file__).resolve().parents[1] / "scenarios"
+    if here.is_dir():
+        return here
+    from importlib.resources import files
+
+    return Path(str(files("bench") / "_data" / "scenarios"))
+
+
+def run(args) -> int:
+    if args.what == "controllers":
+        from bench.controllers.registry import available
+
+        for info in available():
+            print(f"{info.name:<16} {info.description}")
+    elif args.what == "criteria":
+        from bench.scoring.criteria import available
+
+        for name, crit in sorted(available().items()):
+            print(f"{name:<24} {getattr(crit, 'description', '')}")
+    else:
+        from bench.cli.common import load_or_report
+
+        paths = args.path or [str(bundled_scenarios_dir())]
+        scenarios = load_or_report(paths)
+        if scenarios is None:
+            return 2
+        for sc in scenarios:
+            desc = " ".join((sc.description or "").split())
+            print(f"{sc.id:<36} {desc[:100]}")
+    return 0

@@ -1,0 +1,102 @@
+"""Controller registry: resolve a controller name to a factory.
+
+A name resolves, in this order, to: a controller registered in this process
+with :func:`register`; an entry point in the group ``bench.controllers`` (the
+bench's own controllers are registered this way, exactly as a user's would be);
+or a ``package.module:attribute`` reference. The factory is called with no
+arguments and must return an object following :class:`bench.controllers.base.Controller`.
+"""
+
+from __future__ import annotations
+
+import importlib
+from dataclasses import dataclass
+from importlib.metadata import entry_points
+from typing import Callable
+
+ENTRY_POINT_GROUP = "bench.controllers"
+
+_registered: dict[str, tuple[Callable[[], object], str]] = {}
+
+
+class ControllerNotFound(LookupError):
+    """The controller name resolves to nothing; the message lists what exists."""
+
+
+@dataclass(frozen=True)
+class ControllerInfo:
+    name: str
+    description: str
+    origin: str
+
+
+def register(name: str, factory: Callable[[], object], description: str = "") -> None:
+    """Register ``factory`` under ``name`` for this process (tests and notebooks)."""
+    _registered[name] = (factory, description)
+
+
+def _entry_points() -> dict[str, object]:
+    return {ep.name: ep for ep in entry_points(group=ENTRY_POINT_GROUP)}
+
+
+def _describe(obj: object) -> str:
+    doc = (getattr(obj, "__doc__", None) or "").strip()
+    return doc.splitlines()[0] if doc else ""
+
+
+def available() -> list[ControllerInfo]:
+    """Every controller that a name resolves to, sorted by name."""
+    infos = {}
+    for name, ep in _entry_points().items():
+        try:
+            desc = _describe(ep.load())
+        except Exception as exc:  # a broken plugin must not break listing
+            desc = f"(cannot be loaded: {exc})"
+        infos[name] = ControllerInfo(name, desc, f"entry point {ep.value}")
+    for name, (factory, desc) in _registered.items():
+        infos[name] = ControllerInfo(name, desc or _describe(factory), "registered")
+    return [infos[k] for k in sorted(infos)]
+
+
+def resolve(name: str) -> Callable[[], object]:
+    """Return the factory for ``name``; raise :class:`ControllerNotFound` with a hint."""
+    if name in _registered:
+        return _registered[name][0]
+    eps = _entry_points()
+    if name in eps:
+        try:
+            return eps[name].load()
+        except Exception as exc:
+            raise ControllerNotFound(
+                f"controller {name!r}: its entry point {eps[name].value} cannot be loaded: {exc}"
+            ) from None
+    if ":" in name:
+        module_name, _, attr = name.partition(":")
+        try:
+            module = importlib.import_module(module_name)
+        except Exception as exc:
+            raise ControllerNotFound(f"controller {name!r}: cannot import module {module_name!r}: {exc}") from None
+        obj = module
+        for part in attr.split("."):
+            obj = getattr(obj, part, None)
+            if obj is None:
+                raise ControllerNotFound(f"controller {name!r}: module {module_name!r} has no attribute {attr!r}")
+        return obj
+    known = ", ".join(sorted(set(eps) | set(_registered))) or "none"
+    raise ControllerNotFound(
+        f"unknown controller {name!r}; known: {known}; or give package.module:attribute"
+    )
+
+
+def make(name_or_object: object) -> tuple[str, object]:
+    """Resolve and instantiate. Accepts a name, a factory, or a controller object."""
+    if isinstance(name_or_object, str):
+        factory = resolve(name_or_object)
+        return name_or_object, factory()
+    if hasattr(name_or_object, "step") and hasattr(name_or_object, "reset"):
+        obj = name_or_object
+        return getattr(obj, "name", type(obj).__name__), obj
+    if callable(name_or_object):
+        obj = name_or_object()
+        return getattr(obj, "name", type(obj).__name__), obj
+    raise ControllerNotFound(f"cannot make a controller from {name_or_object!r}")

@@ -1,0 +1,110 @@
+"""One job: build the world, run the episode, score it; a plain function any executor can call.
+
+``run_job`` never raises for a fault of the scenario's episode: a controller
+that cannot be made, a world that cannot be built or an episode that breaks
+all come back as an outcome with status ``error`` and a reason, so that the
+rest of the run goes on. The outcome carries the trace as bytes, so that it can
+cross a process or network boundary; the caller writes the files.
+"""
+
+from __future__ import annotations
+
+import time
+import traceback
+from dataclasses import dataclass, field
+
+import mujoco
+import numpy as np
+
+import bench
+from bench.controllers import registry
+from bench.robot.model import NominalRobot
+from bench.scoring.verdict import score
+from bench.sim.episode import EpisodeLimits, run_episode
+from bench.sim.trace import Trace
+from bench.world.build import build_world, manifest_for
+
+
+@dataclass
+class Job:
+    scenario: object
+    controller: object = "force-qp-l1"   # a name, a factory or a controller object
+    seed: int | None = None
+    limits: EpisodeLimits = field(default_factory=EpisodeLimits)
+
+
+@dataclass
+class Outcome:
+    result: dict
+    trace: Trace | None
+    events: list = field(default_factory=list)
+
+
+def _base_result(scenario, controller_name: str, seed: int) -> dict:
+    return {
+        "scenario": scenario.id,
+        "source": str(scenario.source),
+        "controller": controller_name,
+        "seed": int(seed),
+        "status": "error",
+        "passed": False,
+        "reason": None,
+        "sim_time_s": 0.0,
+        "wall_time_s": 0.0,
+        "realtime_factor": 0.0,
+        "controller_ms": {"p50": 0.0, "p99": 0.0, "max": 0.0},
+        "criteria": [],
+        "metrics": {},
+        "bench_version": bench.__version__,
+        "mujoco_version": mujoco.__version__,
+        "content_hash": getattr(scenario, "content_hash", ""),
+        "tags": list(getattr(scenario, "tags", []) or []),
+        "events": [],
+    }
+
+
+def run_job(job: Job) -> Outcome:
+    sc = job.scenario
+    seed = int(sc.seed if job.seed is None else job.seed)
+    name = job.controller if isinstance(job.controller, str) else getattr(job.controller, "name", "custom")
+    result = _base_result(sc, str(name), seed)
+    t0 = time.perf_counter()
+    try:
+        cname, controller = registry.make(job.controller)
+        result["controller"] = str(cname)
+    except Exception as exc:  # noqa: BLE001
+        result["reason"] = f"controller {name!r} could not be made: {exc}"
+        return Outcome(result, None)
+    try:
+        manifest = manifest_for(sc)
+        world = build_world(sc, manifest)
+        robot = NominalRobot(manifest)
+    except Exception as exc:  # noqa: BLE001
+        result["reason"] = f"world could not be built: {type(exc).__name__}: {exc}"
+        result["wall_time_s"] = time.perf_counter() - t0
+        return Outcome(result, None)
+    try:
+        ep = run_episode(world, sc, controller, robot, seed=seed, limits=job.limits)
+    except Exception as exc:  # noqa: BLE001 - a bench bug must still not unwind the run
+        result["reason"] = f"episode failed: {type(exc).__name__}: {exc}"
+        result["traceback"] = traceback.format_exc(limit=6)
+        result["wall_time_s"] = time.perf_counter() - t0
+        return Outcome(result, None)
+    verdict = score(ep.trace, dict(sc.criteria), episode_status=ep.status, episode_reason=ep.reason,
+                    score_from=float(sc.score_from), controller_stats=ep.controller_stats)
+    ms = ep.trace["controller_ms"] if len(ep.trace) else np.zeros(1)
+    result.update({
+        "status": verdict.status,
+        "passed": verdict.passed,
+        "reason": verdict.reason,
+        "sim_time_s": ep.sim_time_s,
+        "wall_time_s": ep.wall_time_s,
+        "realtime_factor": ep.sim_time_s / ep.wall_time_s if ep.wall_time_s > 0 else 0.0,
+        "controller_ms": {"p50": float(np.percentile(ms, 50)), "p99": float(np.percentile(ms, 99)),
+                          "max": float(ms.max())},
+        "criteria": [c.to_dict() for c in verdict.criteria],
+        "metrics": verdict.metrics,
+        "events": [e.to_dict() for e in ep.events],
+        "episode_status": ep.status,
+    })
+    return Outcome(result, ep.trace, ep.events)

@@ -1,0 +1,135 @@
+"""Criteria: a named rule over metrics that a scenario sets a limit for.
+
+A criterion is an object with ``name``, ``description``, ``unit`` and
+``evaluate(metrics, series, trace, limit, score_from) -> CriterionResult``.
+Criteria are found through the entry point group ``bench.criteria``; the
+built-ins below are registered there by this package's own ``pyproject.toml``,
+exactly as a user's would be.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from importlib.metadata import entry_points
+
+import numpy as np
+
+ENTRY_POINT_GROUP = "bench.criteria"
+
+
+@dataclass
+class CriterionResult:
+    name: str
+    value: float | None
+    limit: float | None
+    passed: bool
+    first_violation_s: float | None
+    unit: str = ""
+
+    def to_dict(self) -> dict:
+        return {"name": self.name, "value": self.value, "limit": self.limit, "passed": self.passed,
+                "first_violation_s": self.first_violation_s}
+
+    def sentence(self) -> str:
+        if self.name == "no_fall":
+            return f"no_fall: the robot fell at {self.first_violation_s:.2f} s"
+        op = ">" if self.value is not None and self.limit is not None and self.value > self.limit else "<"
+        when = f" (first at {self.first_violation_s:.2f} s)" if self.first_violation_s is not None else ""
+        return f"{self.name}: {_fmt(self.value)}{self.unit} {op} limit {_fmt(self.limit)}{self.unit}{when}"
+
+
+def _fmt(x: float | None) -> str:
+    if x is None:
+        return "n/a"
+    return f"{x:.3g}" if abs(x) < 1000 else f"{x:.0f}"
+
+
+@dataclass(frozen=True)
+class MetricCriterion:
+    """Passes when ``metrics[metric]`` is at most (``sense='max'``) or at least (``'min'``) the limit.
+
+    ``series`` names the per-tick series whose first crossing of the limit gives
+    the first violation time; criteria over averages have none.
+    """
+
+    name: str
+    metric: str
+    description: str
+    unit: str = ""
+    sense: str = "max"
+    series: str | None = None
+
+    def evaluate(self, metrics, series, trace, limit, score_from: float) -> CriterionResult:
+        value = metrics.get(self.metric)
+        lim = float(limit)
+        if value is None:
+            return CriterionResult(self.name, None, lim, False, None, self.unit)
+        passed = value <= lim if self.sense == "max" else value >= lim
+        first = None
+        if not passed and self.series and self.series in series and len(trace):
+            t = trace["t"]
+            x = np.abs(series[self.series])
+            over = np.flatnonzero((t >= score_from) & (x > lim))
+            first = float(t[over[0]]) if over.size else None
+        elif not passed and self.sense == "min" and len(trace):
+            first = float(trace["t"][-1])
+        return CriterionResult(self.name, float(value), lim, bool(passed), first, self.unit)
+
+
+@dataclass(frozen=True)
+class NoFall:
+    name: str = "no_fall"
+    description: str = "the robot does not fall (trunk or leg on the ground, or trunk under the fall height)"
+    unit: str = ""
+
+    def evaluate(self, metrics, series, trace, limit, score_from: float) -> CriterionResult:
+        fell = metrics.get("fell", 0.0) > 0
+        if limit is False:
+            return CriterionResult(self.name, metrics.get("fell", 0.0), None, True, None)
+        first = float(trace.meta.get("fall_time", -1.0)) if fell else None
+        return CriterionResult(self.name, 1.0 if fell else 0.0, None, not fell, first)
+
+
+NO_FALL = NoFall()
+HEIGHT_ERROR_MAX = MetricCriterion("height_error_max", "height_error_max",
+                                   "largest |trunk height error| against the nominal height above the ground, m",
+                                   " m", series="height_error")
+HEIGHT_ERROR_RMS = MetricCriterion("height_error_rms", "height_error_rms", "RMS trunk height error, m", " m")
+ROLL_ERROR_MAX_DEG = MetricCriterion("roll_error_max_deg", "roll_error_deg_max", "largest |roll| of the trunk, deg",
+                                     " deg", series="roll_error_deg")
+PITCH_ERROR_MAX_DEG = MetricCriterion("pitch_error_max_deg", "pitch_error_deg_max",
+                                      "largest |pitch| of the trunk, deg", " deg", series="pitch_error_deg")
+ROLL_ERROR_MEAN_DEG = MetricCriterion("roll_error_mean_deg", "roll_error_deg_mean", "mean |roll| of the trunk, deg",
+                                      " deg")
+PITCH_ERROR_MEAN_DEG = MetricCriterion("pitch_error_mean_deg", "pitch_error_deg_mean",
+                                       "mean |pitch| of the trunk, deg", " deg")
+DRIFT_MAX = MetricCriterion("drift_max", "drift_max", "largest horizontal drift while commanded to stand, m", " m",
+                            series="drift")
+DISTANCE_MIN = MetricCriterion("distance_min", "distance", "net horizontal distance travelled, m (at least)", " m",
+                               sense="min")
+VELOCITY_RMSE_MAX = MetricCriterion("velocity_rmse_max", "velocity_rmse",
+                                    "RMSE of heading-frame velocity against the command once settled, m/s", " m/s")
+YAW_RATE_RMSE_MAX = MetricCriterion("yaw_rate_rmse_max", "yaw_rate_rmse",
+                                    "RMSE of yaw rate against the command once settled, rad/s", " rad/s")
+TORQUE_SATURATION_MAX = MetricCriterion("torque_saturation_max", "torque_saturation",
+                                        "share of ticks with a joint torque at its limit", "")
+CONTROLLER_P99_MS_MAX = MetricCriterion("controller_p99_ms_max", "controller_ms_p99",
+                                        "99th percentile of controller compute time per tick, ms", " ms")
+
+
+def available() -> dict[str, object]:
+    """Every criterion found through the entry point group, by name."""
+    out = {}
+    for ep in entry_points(group=ENTRY_POINT_GROUP):
+        try:
+            out[ep.name] = ep.load()
+        except Exception:  # noqa: BLE001 - a broken plugin is reported when used
+            continue
+    return out
+
+
+def resolve(name: str):
+    crit = available().get(name)
+    if crit is None:
+        raise KeyError(f"unknown criterion {name!r}")
+    return crit

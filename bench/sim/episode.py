@@ -1,0 +1,421 @@
+"""One episode: the physics loop, control ticks, timed events, faults and the trace.
+
+Physics runs at the scenario's timestep; the controller is called at the
+control rate and its torques are held (after clipping to the, possibly
+derated, limits) until the next call. On a control tick the step is split
+(``mj_step1``/``mj_step2``) so that the observation, the recorded row and the
+contact forces all belong to the same instant; the other substeps are plain
+``mj_step``. Ends early on a fall, on non-finite state, on a MuJoCo warning, on
+a controller fault or timeout; each becomes a status with a reason, never an
+exception that unwinds the run.
+
+The controller gets only an :class:`~bench.controllers.base.Observation`: the
+world model, the scenario, payloads and disturbances stay out of its reach.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass, field
+
+import mujoco
+import numpy as np
+
+from bench.controllers.base import Observation
+from bench.sim.events import Event, compile_forces, compile_masses, fault_events
+from bench.sim.trace import Trace
+
+#: A fall: trunk origin closer to the ground under it than this share of the nominal height.
+FALL_HEIGHT_FRACTION = 0.4
+#: Contact distance below which a foot counts as touching, m.
+CONTACT_DIST_M = 0.002
+#: Samples per metre of the ground-level table used by the per-tick fall check.
+TABLE_PER_M = 100
+#: MuJoCo warnings that end an episode as an error (the state can no longer be trusted).
+FATAL_WARNINGS = (
+    mujoco.mjtWarning.mjWARN_BADQACC, mujoco.mjtWarning.mjWARN_BADQPOS, mujoco.mjtWarning.mjWARN_BADQVEL,
+    mujoco.mjtWarning.mjWARN_CONTACTFULL, mujoco.mjtWarning.mjWARN_CNSTRFULL, mujoco.mjtWarning.mjWARN_BADCTRL,
+)
+_WARN_TEXT = {
+    mujoco.mjtWarning.mjWARN_BADQACC: "simulation unstable: bad acceleration (QACC)",
+    mujoco.mjtWarning.mjWARN_BADQPOS: "bad joint position (QPOS)",
+    mujoco.mjtWarning.mjWARN_BADQVEL: "bad joint velocity (QVEL)",
+    mujoco.mjtWarning.mjWARN_CONTACTFULL: "contact buffer full",
+    mujoco.mjtWarning.mjWARN_CNSTRFULL: "constraint buffer full",
+    mujoco.mjtWarning.mjWARN_BADCTRL: "bad control value",
+}
+
+
+@dataclass
+class EpisodeLimits:
+    """Wall-clock limits for the controller; exceeding one ends the episode as ``timeout``."""
+
+    tick_timeout_s: float = 2.0
+    episode_timeout_s: float | None = 600.0
+
+
+@dataclass
+class EpisodeResult:
+    """What an episode returns: the trace plus how and why it ended."""
+
+    trace: Trace
+    status: str                    # "completed", "fell", "error" or "timeout"
+    reason: str | None
+    sim_time_s: float
+    wall_time_s: float
+    events: list[Event] = field(default_factory=list)
+    controller_stats: dict = field(default_factory=dict)
+
+
+def _quat_to_mat(q: np.ndarray, out: np.ndarray) -> np.ndarray:
+    mujoco.mju_quat2Mat(out, q)
+    return out
+
+
+class _SensorFaults:
+    """Noise, bias and freezing applied to the observation, drawn from the episode's generator."""
+
+    _FIELDS = {"imu_gyro": "imu_gyro", "imu_accel": "imu_accel", "joint_pos": "joint_pos",
+               "joint_vel": "joint_vel", "imu_orientation": "imu_quat"}
+
+    def __init__(self, faults, rng: np.random.Generator):
+        self.noise = [f for f in faults if f.kind == "sensor_noise"]
+        self.freeze = [f for f in faults if f.kind == "sensor_freeze"]
+        self.rng = rng
+        self.frozen: dict[str, np.ndarray] = {}
+        self.active = bool(self.noise or self.freeze)
+
+    def apply(self, obs: Observation, t: float) -> None:
+        for f in self.freeze:
+            name = self._FIELDS[f.sensor]
+            if t >= f.at:
+                if name not in self.frozen:
+                    self.frozen[name] = getattr(obs, name).copy()
+                getattr(obs, name)[:] = self.frozen[name]
+        for f in self.noise:
+            if t < f.at:
+                continue
+            name = self._FIELDS[f.sensor]
+            arr = getattr(obs, name)
+            if name == "imu_quat":
+                # A random small rotation (std in rad per axis) composed with the true one.
+                rv = self.rng.standard_normal(3) * f.std + f.bias
+                dq = np.empty(4)
+                mujoco.mju_axisAngle2Quat(dq, rv / (np.linalg.norm(rv) + 1e-12), float(np.linalg.norm(rv)))
+                out = np.empty(4)
+                mujoco.mju_mulQuat(out, arr, dq)
+                arr[:] = out
+            else:
+                arr += self.rng.standard_normal(arr.shape) * f.std + f.bias
+
+
+def run_episode(world, scenario, controller, robot, *, seed: int | None = None,
+                limits: EpisodeLimits | None = None) -> EpisodeResult:
+    """Run ``scenario`` in ``world`` with ``controller`` (already constructed) and return the result."""
+    limits = limits or EpisodeLimits()
+    seed = int(scenario.seed if seed is None else seed)
+    m = world.model
+    d = mujoco.MjData(m)
+    dt = float(m.opt.timestep)
+    ctrl_dt = 1.0 / float(scenario.control_rate)
+    substeps = max(int(round(ctrl_dt / dt)), 1)
+    n_ticks = int(round(float(scenario.duration) * float(scenario.control_rate)))
+    J, F, P = len(world.joint_qpos_adr), len(world.foot_site_ids), len(world.payloads)
+    trace = Trace.allocate(n_ticks, J, F, m.nq, P)
+    A = trace.arrays
+    rng = np.random.default_rng(np.random.SeedSequence([seed, 104729]))
+
+    # --- compile timed events once -------------------------------------------------
+    forces, events = compile_forces(scenario.disturbances, seed, dt, float(scenario.duration))
+    mass_scheds, mass_events = compile_masses(scenario.payloads, float(scenario.duration))
+    events += mass_events + fault_events(scenario.faults, float(scenario.duration))
+    events.sort(key=lambda e: e.t_start)
+    sensor_faults = _SensorFaults(scenario.faults, rng)
+    joint_index = {name: i for i, name in enumerate(world.robot.joints)}
+    derates = [(f.at, np.arange(J) if f.joints == "all" else np.array([joint_index[j] for j in f.joints]), f.factor)
+               for f in scenario.faults if f.kind == "derate"]
+    limps = [(f.at, joint_index[f.joint]) for f in scenario.faults if f.kind == "limp"]
+    locks = [(f.at, joint_index[f.joint], world.lock_eq_ids[i]) for i, f in enumerate(scenario.faults)
+             if f.kind == "lock"]
+    latencies = sorted((f.at, max(int(round(f.delay / ctrl_dt)), 0)) for f in scenario.faults if f.kind == "latency")
+    max_delay = max([k for _, k in latencies], default=0)
+    tau_ring = np.zeros((max_delay + 1, J))
+
+    nominal_limits = np.asarray(world.robot.torque_limits, dtype=float)
+    limit_now = nominal_limits.copy()
+    payload_mass = np.array([float(p.spec.mass) if not p.spec.attach_at else 0.0 for p in world.payloads])
+    payload_geom_contype = np.array([m.geom_contype[p.geom_id] for p in world.payloads], dtype=int)
+    base_rgba_alpha = np.array([m.geom_rgba[p.geom_id, 3] for p in world.payloads])
+
+    # --- id tables for the hot loop ------------------------------------------------------
+    trunk = world.trunk_body_id
+    qa, va = world.root_qpos_adr, world.root_dof_adr
+    jq, jv, act = world.joint_qpos_adr, world.joint_dof_adr, world.actuator_ids
+    feet_sites = world.foot_site_ids
+    carried = world.carried_body_ids
+    is_terrain = np.zeros(m.ngeom, dtype=bool)
+    is_terrain[world.terrain_geom_ids] = True
+    is_fall = np.zeros(m.ngeom, dtype=bool)
+    is_fall[world.fall_geom_ids] = True
+    foot_of_geom = np.full(m.ngeom, -1, dtype=int)
+    foot_of_geom[world.foot_geom_ids] = np.arange(F)
+    iq, ig, ia = world.imu_quat_adr, world.imu_gyro_adr, world.imu_accel_adr
+    cmd_times = np.array([c.at for c in scenario.commands] or [0.0])
+    cmd_vals = np.array([[c.vx, c.vy, c.yaw_rate] for c in scenario.commands] or [[0.0, 0.0, 0.0]])
+    cmd_index = np.clip(np.searchsorted(cmd_times, np.arange(n_ticks) * ctrl_dt + 1e-9, side="right") - 1, 0, None)
+    fall_z = FALL_HEIGHT_FRACTION * world.robot.nominal_height
+    # Ground level along the path at 1 cm for the per-tick fall check (the exact query is vectorised after).
+    table_x0, table_x1 = world.terrain.extent_x()
+    ground_table = world.terrain.height_at(np.arange(table_x0, table_x1, 1.0 / TABLE_PER_M),
+                                           np.zeros(int(np.ceil((table_x1 - table_x0) * TABLE_PER_M))))
+    table_last = len(ground_table) - 1
+    fatal_idx = np.array([int(w) for w in FATAL_WARNINGS])
+    applied_buf = np.zeros(J)
+    f_active = np.zeros(len(forces.k0), dtype=bool)
+    R = np.zeros(9)
+    cf = np.zeros(6)
+    frame = np.zeros((3, 3))
+    ext_now = np.zeros(3)
+
+    # --- initial state -------------------------------------------------------------
+    d.qpos[:] = world.initial_qpos
+    for p, mass in zip(world.payloads, payload_mass):
+        _set_payload_mass(m, p, mass)
+    mujoco.mj_forward(m, d)
+    obs = Observation.zeros(J, F)
+    command = np.zeros(3)
+    status, reason = "completed", None
+    ctrl_ms = A["controller_ms"]
+
+    try:
+        controller.reset(robot, ctrl_dt)
+    except Exception as exc:  # noqa: BLE001 - a fault of the controller, reported as such
+        return EpisodeResult(trace.__class__({k: v[:0] for k, v in A.items()}), "error",
+                             f"controller raised {type(exc).__name__} in reset(): {exc}", 0.0, 0.0, events)
+
+    def apply_forces(step: int) -> None:
+        d.xfrc_applied[trunk, :] = 0.0
+        ext_now[:] = 0.0
+        if forces.empty:
+            return
+        np.logical_and(forces.k0 <= step, step < forces.k1, out=f_active)
+        if not f_active.any():
+            return
+        mujoco.mju_quat2Mat(R, d.xquat[trunk])
+        Rm = R.reshape(3, 3)
+        for i in np.flatnonzero(f_active):
+            f = forces.force[i]
+            pt = d.xpos[trunk] + Rm @ forces.point[i]
+            d.xfrc_applied[trunk, :3] += f
+            d.xfrc_applied[trunk, 3:] += np.cross(pt - d.xipos[trunk], f)
+            ext_now[:] += f
+
+    wall0 = time.perf_counter()
+    step = 0
+    k = 0
+    for k in range(n_ticks):
+        t = k * ctrl_dt
+        # Timed changes to the world the controller is not told about.
+        for ms in mass_scheds:
+            mass = ms.mass_at(t)
+            if mass != payload_mass[ms.payload_index]:
+                p = world.payloads[ms.payload_index]
+                _set_payload_mass(m, p, mass)
+                visible = mass > 0
+                m.geom_contype[p.geom_id] = payload_geom_contype[ms.payload_index] if visible else 0
+                m.geom_rgba[p.geom_id, 3] = base_rgba_alpha[ms.payload_index] if visible else 0.0
+                payload_mass[ms.payload_index] = mass
+        for at, idx, factor in derates:
+            if t >= at:
+                limit_now[idx] = nominal_limits[idx] * factor
+        for at, j, eq in locks:
+            if t >= at and not d.eq_active[eq]:
+                m.eq_data[eq, 0] = d.qpos[jq[j]]
+                d.eq_active[eq] = 1
+
+        apply_forces(step)
+        mujoco.mj_step1(m, d)
+
+        # Observation: sensors, joints, contacts of this instant.
+        obs.t = t
+        obs.imu_quat[:] = d.sensordata[iq:iq + 4]
+        obs.imu_gyro[:] = d.sensordata[ig:ig + 3]
+        obs.imu_accel[:] = d.sensordata[ia:ia + 3]
+        obs.joint_pos[:] = d.qpos[jq]
+        obs.joint_vel[:] = d.qvel[jv]
+        obs.privileged.base_pos[:] = d.qpos[qa:qa + 3]
+        obs.privileged.base_linvel[:] = d.qvel[va:va + 3]
+        obs.foot_contact[:] = False
+        fell_contact = False
+        foot_con = None
+        if d.ncon:
+            # Contacts with the ground, classified with array lookups (no per-contact Python work).
+            geoms = d.contact.geom
+            g1, g2 = geoms[:, 0], geoms[:, 1]
+            t1 = is_terrain[g1]
+            other = np.where(t1, g2, g1)
+            ground_con = t1 | is_terrain[g2]
+            foot = foot_of_geom[other]
+            foot_con = np.flatnonzero(ground_con & (foot >= 0))
+            touching = foot_con[d.contact.dist[foot_con] < CONTACT_DIST_M]
+            obs.foot_contact[foot[touching]] = True
+            fell_contact = bool(np.any(ground_con & is_fall[other] & (d.contact.dist < 0)))
+        _record_state(A, k, t, world, d, obs, payload_mass, carried, feet_sites)
+        if sensor_faults.active:
+            sensor_faults.apply(obs, t)
+        command[:] = cmd_vals[cmd_index[k]]
+
+        # The controller.
+        c0 = time.perf_counter()
+        try:
+            tau = controller.step(obs, command)
+        except Exception as exc:  # noqa: BLE001
+            status, reason = "error", f"controller raised {type(exc).__name__} at tick {k} (t={t:.3f} s): {exc}"
+            break
+        c1 = time.perf_counter()
+        ctrl_ms[k] = (c1 - c0) * 1e3
+        if c1 - c0 > limits.tick_timeout_s:
+            status, reason = "timeout", (f"controller took {c1 - c0:.2f} s at tick {k} (t={t:.3f} s), "
+                                         f"over the per-tick limit of {limits.tick_timeout_s:g} s")
+            break
+        if limits.episode_timeout_s is not None and c1 - wall0 > limits.episode_timeout_s:
+            status, reason = "timeout", (f"episode exceeded the wall-clock limit of {limits.episode_timeout_s:g} s "
+                                         f"at tick {k} (t={t:.3f} s)")
+            break
+        try:
+            tau = np.asarray(tau, dtype=float)
+        except (TypeError, ValueError) as exc:
+            status, reason = "error", f"controller returned a non-numeric value at tick {k} (t={t:.3f} s): {exc}"
+            break
+        if tau.shape != (J,):
+            status, reason = "error", (f"controller returned torques of shape {tau.shape} at tick {k} "
+                                       f"(t={t:.3f} s); expected ({J},)")
+            break
+        if not math.isfinite(float(tau.sum())):  # any NaN or infinity makes the sum non-finite
+            status, reason = "error", f"controller returned non-finite torques at tick {k} (t={t:.3f} s)"
+            break
+
+        # Latency, limp joints and limits, then hold until the next tick.
+        delay = 0
+        for at, dk in latencies:
+            if t >= at:
+                delay = dk
+        tau_ring[k % (max_delay + 1)] = tau
+        applied = tau_ring[(k - delay) % (max_delay + 1)] if k >= delay else np.zeros(J)
+        np.minimum(applied, limit_now, out=applied_buf)
+        np.maximum(applied_buf, -limit_now, out=applied_buf)
+        applied = applied_buf
+        for at, j in limps:
+            if t >= at:
+                applied[j] = 0.0
+        d.ctrl[act] = applied
+
+        mujoco.mj_step2(m, d)
+        step += 1
+
+        # Record the row of this instant (contact forces come from this step's solve).
+        _record_effort(A, k, world, d, command, applied, limit_now, ext_now, foot_con, foot_of_geom, is_terrain,
+                       cf, frame)
+
+        for _ in range(substeps - 1):
+            apply_forces(step)
+            mujoco.mj_step(m, d)
+            step += 1
+
+        # End conditions.
+        if d.warning.number.any() and d.warning.number[fatal_idx].any():
+            w = next(w for w in FATAL_WARNINGS if d.warning[w].number > 0)
+            status, reason = "error", (f"MuJoCo warning at t={d.time:.3f} s: {_WARN_TEXT[w]} "
+                                       f"(mjtWarning.{mujoco.mjtWarning(w).name}, info {d.warning[w].lastinfo})")
+            k += 1
+            break
+        if not math.isfinite(d.qpos.sum() + d.qvel.sum()):
+            status, reason = "error", f"non-finite state at t={d.time:.3f} s"
+            k += 1
+            break
+        z = d.qpos[qa + 2]
+        ground = ground_table[min(max(int((d.qpos[qa] - table_x0) * TABLE_PER_M), 0), table_last)]
+        if fell_contact or z - ground < fall_z:
+            why = "trunk or leg touched the ground" if fell_contact else (
+                f"trunk {z - ground:.3f} m above the ground, under the fall threshold {fall_z:.3f} m")
+            status, reason = "fell", f"fell at t={t:.3f} s: {why}"
+            k += 1
+            break
+    else:
+        k = n_ticks
+    wall = time.perf_counter() - wall0
+
+    n = k
+    trace.truncate(n)
+    if n:
+        A = trace.arrays
+        A["terrain_height"][:] = world.terrain.height_at(A["base_pos"][:, 0], A["base_pos"][:, 1])
+    stats = {}
+    if hasattr(controller, "stats"):
+        try:
+            stats = {str(a): float(b) for a, b in dict(controller.stats()).items()}
+        except Exception:  # noqa: BLE001 - optional and informative only
+            stats = {}
+    trace.meta.update({
+        "nominal_height": float(world.robot.nominal_height),
+        "control_dt": ctrl_dt,
+        "timestep": dt,
+        "duration": float(scenario.duration),
+        "status": status,
+        "fall_time": float(n * ctrl_dt) if status == "fell" else -1.0,
+    })
+    return EpisodeResult(trace, status, reason, sim_time_s=float(d.time), wall_time_s=wall,
+                         events=events, controller_stats=stats)
+
+
+def _set_payload_mass(m: mujoco.MjModel, p, mass: float) -> None:
+    m.body_mass[p.body_id] = mass
+    m.body_inertia[p.body_id] = p.unit_inertia * mass
+
+
+def _record_state(A, k, t, world, d, obs, payload_mass, carried, feet_sites) -> None:
+    """The true state at this instant (after ``mj_step1``, before any sensor fault)."""
+    m = world.model
+    va, trunk = world.root_dof_adr, world.trunk_body_id
+    A["t"][k] = t
+    A["qpos"][k] = d.qpos
+    A["base_pos"][k] = obs.privileged.base_pos
+    A["base_quat"][k] = d.xquat[trunk]
+    A["base_linvel"][k] = obs.privileged.base_linvel
+    A["base_angvel"][k] = d.qvel[va + 3:va + 6]   # free-joint angular velocity is in the body frame
+    A["joint_pos"][k] = obs.joint_pos
+    A["joint_vel"][k] = obs.joint_vel
+    A["foot_pos"][k] = d.site_xpos[feet_sites]
+    A["foot_contact"][k] = obs.foot_contact
+    A["payload_mass"][k] = payload_mass
+    mass = m.body_mass[carried]
+    total = float(mass.sum())
+    A["total_mass"][k] = total
+    A["com_pos"][k] = (mass[:, None] * d.xipos[carried]).sum(axis=0) / total
+
+
+def _record_effort(A, k, world, d, command, applied, limit_now, ext_now, foot_con, foot_of_geom, is_terrain, cf,
+                   frame) -> None:
+    """Torques, command, disturbance and ground reaction forces of this instant (after ``mj_step2``)."""
+    m = world.model
+    A["joint_torque"][k] = applied
+    A["torque_limit"][k] = limit_now
+    A["command"][k] = command
+    A["ext_force"][k] = ext_now
+    ff = A["foot_force"][k]
+    ff[:] = 0.0
+    if foot_con is None or not len(foot_con):
+        return
+    geoms = d.contact.geom
+    frames = d.contact.frame
+    for c in foot_con:
+        g2 = geoms[c, 1]
+        # The contact force acts on geom2 in the contact frame (normal from geom1 to geom2).
+        if foot_of_geom[g2] >= 0:
+            sign, foot = 1.0, foot_of_geom[g2]
+        else:
+            sign, foot = -1.0, foot_of_geom[geoms[c, 0]]
+        mujoco.mj_contactForce(m, d, c, cf)
+        frame[:] = frames[c].reshape(3, 3)
+        ff[foot] += sign * (frame.T @ cf[:3])

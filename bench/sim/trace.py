@@ -1,0 +1,93 @@
+"""The Trace: what an episode recorded, one row per control tick.
+
+Keys and meanings are those of ``contracts.md`` (trace.npz); extra keys are
+allowed and never change meaning. ``meta`` carries the scalars scoring needs
+(nominal height, control period, fall time) so that scoring reads only a Trace.
+"""
+
+from __future__ import annotations
+
+import io
+import os
+import tempfile
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+#: Keys promised by contracts.md, in the order they are documented.
+CONTRACT_KEYS = (
+    "t", "base_pos", "base_quat", "base_linvel", "base_angvel", "joint_pos", "joint_vel",
+    "joint_torque", "foot_pos", "foot_force", "command", "total_mass", "com_pos",
+    "ext_force", "terrain_height",
+)
+#: Extra keys this bench adds (allowed by the contract).
+EXTRA_KEYS = ("qpos", "torque_limit", "controller_ms", "foot_contact", "payload_mass")
+
+
+@dataclass
+class Trace:
+    arrays: dict[str, np.ndarray]
+    meta: dict[str, float | int | str] = field(default_factory=dict)
+
+    def __getitem__(self, key: str) -> np.ndarray:
+        return self.arrays[key]
+
+    def __len__(self) -> int:
+        return len(self.arrays["t"])
+
+    @classmethod
+    def allocate(cls, n: int, n_joints: int, n_feet: int, nq: int, n_payloads: int) -> "Trace":
+        z = np.zeros
+        arrays = {
+            "t": z(n), "base_pos": z((n, 3)), "base_quat": z((n, 4)), "base_linvel": z((n, 3)),
+            "base_angvel": z((n, 3)), "joint_pos": z((n, n_joints)), "joint_vel": z((n, n_joints)),
+            "joint_torque": z((n, n_joints)), "foot_pos": z((n, n_feet, 3)), "foot_force": z((n, n_feet, 3)),
+            "command": z((n, 3)), "total_mass": z(n), "com_pos": z((n, 3)), "ext_force": z((n, 3)),
+            "terrain_height": z(n), "qpos": z((n, nq)), "torque_limit": z((n, n_joints)),
+            "controller_ms": z(n), "foot_contact": z((n, n_feet), dtype=bool),
+            "payload_mass": z((n, n_payloads)),
+        }
+        return cls(arrays)
+
+    def truncate(self, n: int) -> None:
+        for k, v in self.arrays.items():
+            self.arrays[k] = v[:n]
+
+    def to_npz_bytes(self) -> bytes:
+        buf = io.BytesIO()
+        payload = dict(self.arrays)
+        for k, v in self.meta.items():
+            payload[f"meta_{k}"] = np.asarray(v)
+        np.savez_compressed(buf, **payload)
+        return buf.getvalue()
+
+    def save(self, path: str | Path) -> None:
+        """Write atomically: a temporary file in the same folder, then rename."""
+        path = Path(path)
+        data = self.to_npz_bytes()
+        fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+        try:
+            with os.fdopen(fd, "wb") as fh:
+                fh.write(data)
+                fh.flush()
+                os.fsync(fh.fileno())
+            os.replace(tmp, path)
+        except BaseException:
+            try:
+                os.unlink(tmp)
+            except FileNotFoundError:
+                pass
+            raise
+
+    @classmethod
+    def load(cls, path: str | Path) -> "Trace":
+        with np.load(path, allow_pickle=False) as z:
+            arrays, meta = {}, {}
+            for k in z.files:
+                if k.startswith("meta_"):
+                    v = z[k]
+                    meta[k[5:]] = v.item() if v.shape == () else v
+                else:
+                    arrays[k] = z[k]
+        return cls(arrays, meta)
