@@ -1,7 +1,8 @@
 """The ``bench`` command: a thin dispatcher over one module per subcommand.
 
-Each subcommand module exposes ``register(subparsers)``, which adds its parser
-and sets ``func``; ``main`` never special-cases a subcommand. Exit codes follow
+Each module of this package that defines ``register(subparsers)`` is a
+subcommand: it adds its parser and sets ``func``; ``main`` never special-cases
+one. ``ORDER`` (an int, default 50) places it in ``bench --help``. Exit codes follow
 contracts.md: 0 success, 1 a scenario failed or errored, 2 invalid input.
 """
 
@@ -11,8 +12,16 @@ import argparse
 import importlib
 import sys
 
-#: Subcommand modules, in the order ``bench --help`` lists them.
-SUBCOMMANDS = ("run", "check", "listing", "export")
+import pkgutil
+
+
+def _subcommand_modules():
+    mods = []
+    for info in pkgutil.iter_modules(__path__):
+        mod = importlib.import_module(f"{__name__}.{info.name}")
+        if hasattr(mod, "register"):
+            mods.append(mod)
+    return sorted(mods, key=lambda m: (getattr(m, "ORDER", 50), m.__name__))
 
 EXIT_OK, EXIT_FAILED, EXIT_INVALID = 0, 1, 2
 
@@ -30,8 +39,8 @@ def build_parser() -> argparse.ArgumentParser:
     )
     parser.add_argument("--version", action="version", version=f"quadruped-bench {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
-    for name in SUBCOMMANDS:
-        importlib.import_module(f"bench.cli.{name}").register(sub)
+    for mod in _subcommand_modules():
+        mod.register(sub)
     return parser
 
 

@@ -24,3 +24,4 @@ def run(args) -> int:
             print(f"ok  {sc.id}  ({sc.source})")
         print(f"{len(scenarios)} scenario{'s' if len(scenarios) != 1 else ''} valid")
     return 0
+ORDER = 20

@@ -40,3 +40,4 @@ def run(args) -> int:
         return 2
     print(f"wrote {args.output} ({sc.id})")
     return 0
+ORDER = 40

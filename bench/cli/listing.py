@@ -47,3 +47,4 @@ def run(args) -> int:
             desc = " ".join((sc.description or "").split())
             print(f"{sc.id:<36} {desc[:100]}")
     return 0
+ORDER = 30

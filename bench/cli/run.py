@@ -7,6 +7,7 @@ from pathlib import Path
 
 from bench.cli.common import load_or_report, print_table
 
+ORDER = 10
 DEFAULT_CONTROLLER = "force-qp-l1"
 
 
@@ -44,6 +45,7 @@ def deciding_text(result: dict) -> str:
 
 
 def run(args) -> int:
+    from bench.execute.executors import make_executor
     from bench.execute.job import Job, run_job
     from bench.report.results import write_outcome, write_summary
     from bench.sim.episode import EpisodeLimits
@@ -54,14 +56,18 @@ def run(args) -> int:
     out = Path(args.out)
     out.mkdir(parents=True, exist_ok=True)
     limits = EpisodeLimits(tick_timeout_s=args.tick_timeout, episode_timeout_s=args.episode_timeout)
-    entries, rows = [], []
-    for sc in scenarios:
-        outcome = run_job(Job(sc, args.controller, args.seed, limits))
-        write_outcome(out, sc.slug, outcome)
-        r = outcome.result
-        entries.append((sc.slug, r))
-        rows.append([sc.id, r["status"], deciding_text(r), f"{r['realtime_factor']:.1f}x"])
+    jobs = [Job(sc, args.controller, args.seed, limits) for sc in scenarios]
+    executor = make_executor(getattr(args, "workers", None), getattr(args, "cluster", None))
+    results: list[dict | None] = [None] * len(jobs)
+    try:
+        for i, outcome in executor.map(run_job, jobs):
+            write_outcome(out, scenarios[i].slug, outcome)
+            results[i] = outcome.result
+    finally:
+        executor.close()
+    entries = [(sc.slug, r) for sc, r in zip(scenarios, results)]
     summary = write_summary(out, entries)
+    rows = [[sc.id, r["status"], deciding_text(r), f"{r['realtime_factor']:.1f}x"] for sc, r in zip(scenarios, results)]
     print_table(rows, ["scenario", "status", "deciding criterion (value / limit)", "realtime"])
     print(f"results in {out}/")
     line = f"{summary['passed']} passed, {summary['failed']} failed"

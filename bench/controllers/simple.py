@@ -29,7 +29,7 @@ class JointPDController:
 
     name = "joint-pd"
 
-    def __init__(self, kp: float = 60.0, kd: float = 2.0) -> None:
+    def __init__(self, kp: float = 150.0, kd: float = 3.0) -> None:
         self.kp = kp
         self.kd = kd
 

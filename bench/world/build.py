@@ -177,13 +177,31 @@ def initial_qpos(world: World, scenario) -> np.ndarray:
     q = model.qpos0.copy()
     init = scenario.initial
     x, y = float(init.x), float(init.y)
-    ground = float(world.terrain.height_at(np.array([x]), np.array([y]))[0])
+    # Feet land no lower than the ground: the trunk goes at the nominal height above
+    # the highest ground under the trunk or any foot (the nominal foot layout, yawed).
+    yaw = math.radians(float(init.yaw_deg))
+    feet = _nominal_foot_xy(world)
+    c, s = math.cos(yaw), math.sin(yaw)
+    px = np.concatenate([[x], x + c * feet[:, 0] - s * feet[:, 1]])
+    py = np.concatenate([[y], y + s * feet[:, 0] + c * feet[:, 1]])
+    ground = float(np.max(world.terrain.height_at(px, py)))
     a = world.root_qpos_adr
     q[a:a + 3] = [x, y, ground + world.robot.nominal_height + float(init.height_offset)]
-    yaw = math.radians(float(init.yaw_deg))
     q[a + 3:a + 7] = [math.cos(yaw / 2), 0.0, 0.0, math.sin(yaw / 2)]
     q[world.joint_qpos_adr] = world.robot.nominal_pose
     return q
+
+
+def _nominal_foot_xy(world: World) -> np.ndarray:
+    """Foot positions (x, y) in the trunk frame with the trunk at the origin in the nominal pose."""
+    m = world.model
+    d = mujoco.MjData(m)
+    a = world.root_qpos_adr
+    d.qpos[:] = m.qpos0
+    d.qpos[a:a + 7] = [0, 0, 0, 1, 0, 0, 0]
+    d.qpos[world.joint_qpos_adr] = world.robot.nominal_pose
+    mujoco.mj_kinematics(m, d)
+    return d.site_xpos[world.foot_site_ids, :2].copy()
 
 
 def export_mjcf(world: World, path: str | Path) -> None:

@@ -49,6 +49,9 @@ def add_payload(spec: mujoco.MjSpec, trunk: mujoco.MjsBody, p) -> PayloadSpec:
     initial_mass = 0.0 if p.attach_at else float(p.mass)
     body = trunk.add_body(name=body_name, pos=list(p.offset))
     body.explicitinertial = True
+    # An explicit inertial frame; without it MJCF export leaves the inertial element out.
+    body.ipos = [0.0, 0.0, 0.0]
+    body.iquat = [1.0, 0.0, 0.0, 0.0]
     body.mass = initial_mass
     body.inertia = list(unit * initial_mass)
     joints: list[str] = []
