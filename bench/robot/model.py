@@ -1,0 +1,116 @@
+"""The nominal robot: a robot-only MuJoCo model plus every id a consumer needs.
+
+Owns `NominalRobot`, the view of a robot that controllers are allowed to see
+(no floor, no terrain, no payloads: only what the robot's own MJCF says), and
+`load_robot_spec`, the one place the robot MJCF is turned into an `MjSpec`.
+All manifest names are resolved to ids once, here; consumers index arrays.
+"""
+
+from __future__ import annotations
+
+import mujoco
+import numpy as np
+
+from bench.robot.manifest import RobotManifest
+
+
+def load_robot_spec(manifest: RobotManifest) -> mujoco.MjSpec:
+    """A fresh MjSpec of the robot MJCF with the bench's solver options applied."""
+    spec = mujoco.MjSpec.from_file(str(manifest.mjcf_path))
+    # MuJoCo's sparse constraint Jacobian path has a solver bug we avoid everywhere.
+    spec.option.jacobian = mujoco.mjtJacobian.mjJAC_DENSE
+    return spec
+
+
+def _ids(model: mujoco.MjModel, kind: mujoco.mjtObj, names) -> np.ndarray:
+    return np.array([mujoco.mj_name2id(model, kind, n) for n in names], dtype=np.int64)
+
+
+class NominalRobot:
+    """Robot-only model (floating base, gravity on, no floor) and resolved ids, manifest order."""
+
+    def __init__(self, manifest: RobotManifest):
+        self.manifest = manifest
+        self.model: mujoco.MjModel = load_robot_spec(manifest).compile()
+        m = self.model
+        self.mass_kg = float(mujoco.mj_getTotalmass(m))
+
+        self.trunk_body_id = int(mujoco.mj_name2id(m, mujoco.mjtObj.mjOBJ_BODY, manifest.trunk))
+        free = [j for j in range(m.njnt) if m.jnt_bodyid[j] == self.trunk_body_id
+                and int(m.jnt_type[j]) == int(mujoco.mjtJoint.mjJNT_FREE)][0]
+        self.trunk_qpos_adr = int(m.jnt_qposadr[free])      # 7 values: pos(3), quat wxyz(4)
+        self.trunk_dof_adr = int(m.jnt_dofadr[free])        # 6 values: linvel world(3), angvel body(3)
+        self.imu_site_id = int(mujoco.mj_name2id(m, mujoco.mjtObj.mjOBJ_SITE, manifest.imu_site))
+        self.sensor_ids = {role: int(mujoco.mj_name2id(m, mujoco.mjtObj.mjOBJ_SENSOR, name))
+                           for role, name in manifest.sensors.items()}
+        self.sensor_adr = {role: int(m.sensor_adr[i]) for role, i in self.sensor_ids.items()}
+
+        self.joint_ids = _ids(m, mujoco.mjtObj.mjOBJ_JOINT, manifest.joints)
+        self.joint_qpos_adr = m.jnt_qposadr[self.joint_ids].astype(np.int64)
+        self.joint_dof_adr = m.jnt_dofadr[self.joint_ids].astype(np.int64)
+        self.joint_range = m.jnt_range[self.joint_ids].copy()
+        self.joint_limited = m.jnt_limited[self.joint_ids].astype(bool)
+        self.actuator_ids = _ids(m, mujoco.mjtObj.mjOBJ_ACTUATOR, manifest.actuators)
+        self.foot_site_ids = _ids(m, mujoco.mjtObj.mjOBJ_SITE, [f.site for f in manifest.feet])
+        self.foot_geom_ids = _ids(m, mujoco.mjtObj.mjOBJ_GEOM, [f.geom for f in manifest.feet])
+        self.fall_geom_ids = _ids(m, mujoco.mjtObj.mjOBJ_GEOM, manifest.fall_geoms)
+
+        self.torque_limits = np.array(manifest.torque_limits, dtype=float)
+        self.nominal_pose = np.array(manifest.nominal_pose, dtype=float)
+        self.nominal_height = float(manifest.nominal_height)
+        for arr in (self.joint_qpos_adr, self.joint_dof_adr, self.joint_range, self.joint_limited,
+                    self.actuator_ids, self.foot_site_ids, self.foot_geom_ids, self.fall_geom_ids,
+                    self.torque_limits, self.nominal_pose):
+            arr.setflags(write=False)
+
+        self.nominal_qpos = self._nominal_qpos()
+        self.trunk_inertia_body, self.com_offset_trunk = self._nominal_inertia()
+        for arr in (self.nominal_qpos, self.trunk_inertia_body, self.com_offset_trunk):
+            arr.setflags(write=False)
+
+    @property
+    def num_joints(self) -> int:
+        return len(self.joint_ids)
+
+    @property
+    def num_feet(self) -> int:
+        return len(self.foot_site_ids)
+
+    def _nominal_qpos(self) -> np.ndarray:
+        """Full qpos: trunk upright at nominal_height above the origin, joints at nominal_pose."""
+        qpos = self.model.qpos0.copy()
+        a = self.trunk_qpos_adr
+        qpos[a:a + 3] = (0.0, 0.0, self.nominal_height)
+        qpos[a + 3:a + 7] = (1.0, 0.0, 0.0, 0.0)
+        qpos[self.joint_qpos_adr] = self.nominal_pose
+        return qpos
+
+    def _nominal_inertia(self) -> tuple[np.ndarray, np.ndarray]:
+        """Whole-robot inertia about its COM and the COM offset, both in the trunk frame.
+
+        With the robot posed at `nominal_qpos`, mj_kinematics places the bodies,
+        mj_comPos computes each body's inertia (`cinert`) about the tree's COM
+        (`subtree_com` of the root) in world axes, and mj_crb sums those over the
+        subtree into composite inertias (`crb`). The trunk is the tree root, so
+        `crb[trunk]` is the whole robot's inertia about its COM; its layout is
+        (Ixx, Iyy, Izz, Ixy, Ixz, Iyz, m*c(3), m). It is rotated into the trunk frame.
+        """
+        m = self.model
+        d = mujoco.MjData(m)
+        d.qpos[:] = self.nominal_qpos
+        mujoco.mj_kinematics(m, d)
+        mujoco.mj_comPos(m, d)
+        mujoco.mj_crb(m, d)
+        b = self.trunk_body_id
+        c = d.crb[b]
+        inertia_world = np.array([[c[0], c[3], c[4]],
+                                  [c[3], c[1], c[5]],
+                                  [c[4], c[5], c[2]]])
+        rot = d.xmat[b].reshape(3, 3)              # trunk frame -> world
+        inertia_trunk = rot.T @ inertia_world @ rot
+        com_offset = rot.T @ (d.subtree_com[b] - d.xpos[b])
+        return 0.5 * (inertia_trunk + inertia_trunk.T), com_offset
+
+    def __repr__(self) -> str:
+        return (f"NominalRobot({self.manifest.name!r}, joints={self.num_joints}, "
+                f"feet={self.num_feet}, mass_kg={self.mass_kg:.3f})")
