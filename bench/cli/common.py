@@ -12,8 +12,14 @@ def load_or_report(paths: list[str], roots: list[str] | None = None):
     """Load scenarios; on problems print each as ``path:line:col: message`` and return None."""
     from bench.scenario.loader import load_scenarios
 
+    from bench.world.validate import check_against_robot
+
     try:
-        return load_scenarios(list(paths), roots=[Path(r) for r in (roots or [])])
+        scenarios = load_scenarios(list(paths), roots=[Path(r) for r in (roots or [])])
+        errors = [e for sc in scenarios for e in check_against_robot(sc)]
+        if errors:
+            raise ScenarioErrors(errors)
+        return scenarios
     except ScenarioErrors as exc:
         for err in exc.errors:
             print(str(err), file=sys.stderr)

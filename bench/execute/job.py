@@ -91,7 +91,7 @@ def run_job(job: Job) -> Outcome:
         result["wall_time_s"] = time.perf_counter() - t0
         return Outcome(result, None)
     verdict = score(ep.trace, dict(sc.criteria), episode_status=ep.status, episode_reason=ep.reason,
-                    score_from=float(sc.score_from), controller_stats=ep.controller_stats)
+                    score_from=sc.score_from_s, controller_stats=ep.controller_stats)
     ms = ep.trace["controller_ms"] if len(ep.trace) else np.zeros(1)
     result.update({
         "status": verdict.status,
@@ -106,5 +106,6 @@ def run_job(job: Job) -> Outcome:
         "metrics": verdict.metrics,
         "events": [e.to_dict() for e in ep.events],
         "episode_status": ep.status,
+        "score_from_s": sc.score_from_s,
     })
     return Outcome(result, ep.trace, ep.events)

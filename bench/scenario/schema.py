@@ -1,0 +1,867 @@
+"""Declarative definition of every scenario field (the single source of truth).
+
+Each YAML mapping is a frozen dataclass whose attribute names are the YAML
+keys. Each field is declared with `spec(...)`: its default (or required), a
+doc string, its unit, and its range. The generic validator (`validate.py`)
+and the JSON Schema generator (`jsonschema.py`) both read these definitions,
+so they cannot drift apart.
+
+Terrain pieces, disturbances and faults are one-key mappings in YAML
+(`- slope: {...}`); their dataclasses carry a class attribute `kind` equal to
+that key, and the `*_KINDS` tables list them (add a class there to add a kind).
+
+Cross-field rules that a single field cannot express (a drop before an attach,
+an event after the end, overlapping terrain) live in each class's
+`_problems(ctx)` method, which yields `(relative_path, message, hint)`.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections.abc import Iterator, Mapping
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, ClassVar, Literal, Union
+
+Problem = tuple  # (relative path tuple, message, hint or None)
+
+_MISSING = dataclasses.MISSING
+
+#: Upper bounds that keep a scenario physically meaningful and affordable to build.
+MAX_DURATION_S = 600.0
+MAX_STAIR_RISE_M = 0.5
+MAX_HFIELD_CELLS = 4_000_000  # rough terrain heightfield size (cells), about 16 MB of float32
+MAX_LIST_ITEMS = 1000
+
+
+def spec(
+    default: Any = _MISSING,
+    *,
+    doc: str,
+    unit: str | None = None,
+    ge: float | None = None,
+    gt: float | None = None,
+    le: float | None = None,
+    lt: float | None = None,
+    min_items: int | None = None,
+    max_items: int | None = MAX_LIST_ITEMS,
+    time: str | None = None,
+    parse: Any = None,
+    json: dict | None = None,
+    default_factory: Any = _MISSING,
+    yaml: bool = True,
+    default_doc: str | None = None,
+    check: Any = None,
+    required_unless: str | None = None,
+) -> Any:
+    """Declare one field.
+
+    `ge/gt/le/lt` bound a number (for a list of numbers, every item).
+    `time="event"` marks an episode time that must come before `duration`;
+    `time="end"` one that may equal it. `parse` is a custom converter
+    `(validator, raw, path) -> value` for the few fields whose YAML shape is not
+    a plain type; `json` is then its JSON Schema. `check(items)` (list fields)
+    yields problems across the items. `required_unless="preset"` marks a
+    required field that another field (here a preset) can fill instead. `yaml=False` marks a
+    computed attribute that is not a YAML key. `default_doc` describes a
+    default that depends on other fields (the dataclass default is then None).
+    """
+    meta = {
+        "doc": doc, "unit": unit, "ge": ge, "gt": gt, "le": le, "lt": lt,
+        "min_items": min_items, "max_items": max_items, "time": time, "parse": parse, "json": json,
+        "yaml": yaml, "default_doc": default_doc, "check": check,
+        "required_unless": required_unless,
+    }
+    if default_factory is not _MISSING:
+        return dataclasses.field(default_factory=default_factory, metadata=meta)
+    return dataclasses.field(default=default, metadata=meta)
+
+
+_frozen = dataclass(frozen=True, kw_only=True)
+
+Vec3 = tuple[float, float, float]
+Range2 = tuple[float, float]
+
+# --------------------------------------------------------------------------- robot, ground, start
+
+
+@_frozen
+class RobotRef:
+    """The robot: a bundled model name, or a manifest file of the user's own."""
+
+    name: str | None = spec(None, doc="bundled robot name (models/<name>/manifest.yaml)")
+    manifest: Path | None = spec(None, doc="robot manifest path, resolved relative to the scenario file")
+
+
+@_frozen
+class Ground:
+    """The ground everywhere no terrain piece says otherwise."""
+
+    friction: float = spec(0.8, doc="sliding friction coefficient", gt=0.0, le=5.0)
+
+
+@_frozen
+class Initial:
+    """Trunk start pose on the start ground; joints start in the nominal pose."""
+
+    x: float = spec(0.0, doc="start x", unit="m", ge=-100.0, le=100.0)
+    y: float = spec(0.0, doc="start y", unit="m", ge=-100.0, le=100.0)
+    yaw_deg: float = spec(0.0, doc="start heading about z", unit="deg", ge=-360.0, le=360.0)
+    height_offset: float = spec(0.0, doc="extra height above the nominal standing height", unit="m",
+                                ge=-0.1, le=1.0)
+
+
+# --------------------------------------------------------------------------- terrain
+
+_WIDTH = dict(doc="width across the path (y)", unit="m", gt=0.0, le=100.0)
+_START = dict(doc="x where the piece starts", unit="m", ge=-1000.0, le=1000.0)
+_LENGTH = dict(doc="horizontal length along x", unit="m", gt=0.0, le=1000.0)
+
+STAIR_PRESETS: dict[str, tuple[float, float]] = {
+    # (rise, run) in m: the building-code limits for steepest allowed stairs
+    "irc-residential": (0.196, 0.254),  # 7 3/4 in rise, 10 in tread
+    "ibc-commercial": (0.178, 0.279),  # 7 in rise, 11 in tread
+}
+
+
+class TerrainPiece:
+    """Base of all terrain pieces: an x extent and the ground level change across it."""
+
+    kind: ClassVar[str]
+    start: float
+
+    @property
+    def length_x(self) -> float:
+        return self.length  # type: ignore[attr-defined]
+
+    @property
+    def end(self) -> float:
+        return self.start + self.length_x
+
+    @property
+    def level_change(self) -> float:
+        """Ground level at the end minus ground level at the start, m."""
+        return 0.0
+
+
+@_frozen
+class Slope(TerrainPiece):
+    """A ramp; positive angle goes up along +x."""
+
+    kind: ClassVar[str] = "slope"
+    start: float = spec(**_START)
+    length: float = spec(**_LENGTH)
+    angle_deg: float = spec(doc="incline, positive goes up", unit="deg", ge=-45.0, le=45.0)
+    width: float = spec(3.0, **_WIDTH)
+
+    @property
+    def level_change(self) -> float:
+        return self.length * math.tan(math.radians(self.angle_deg))
+
+
+@_frozen
+class Stairs(TerrainPiece):
+    """A flight of steps; `preset` fills rise and run from a building code."""
+
+    kind: ClassVar[str] = "stairs"
+    start: float = spec(**_START)
+    steps: int = spec(doc="number of steps", ge=1, le=500)
+    rise: float = spec(doc="height of one step (filled by preset)", unit="m", gt=0.0, le=MAX_STAIR_RISE_M,
+                       required_unless="preset")
+    run: float = spec(doc="depth of one step (filled by preset)", unit="m", gt=0.0, le=5.0,
+                      required_unless="preset")
+    direction: Literal["up", "down"] = spec("up", doc="up or down along +x")
+    preset: Literal["irc-residential", "ibc-commercial"] | None = spec(
+        None, doc="fill rise/run from a building code: " + ", ".join(
+            f"{k} (rise {r} m, run {u} m)" for k, (r, u) in STAIR_PRESETS.items()))
+    width: float = spec(3.0, **_WIDTH)
+
+    @classmethod
+    def _defaults(cls, raw: Mapping[str, Any]) -> dict[str, Any]:
+        preset = raw.get("preset")
+        if isinstance(preset, str) and preset in STAIR_PRESETS:
+            rise, run = STAIR_PRESETS[preset]
+            return {"rise": rise, "run": run}
+        return {}
+
+    @property
+    def length_x(self) -> float:
+        return self.steps * self.run
+
+    @property
+    def level_change(self) -> float:
+        return self.steps * self.rise * (1.0 if self.direction == "up" else -1.0)
+
+
+@_frozen
+class Rough(TerrainPiece):
+    """A heightfield of random bumps in [0, height] above the level."""
+
+    kind: ClassVar[str] = "rough"
+    start: float = spec(**_START)
+    length: float = spec(**_LENGTH)
+    width: float = spec(3.0, **_WIDTH)
+    height: float = spec(doc="highest bump above the level", unit="m", gt=0.0, le=0.5)
+    wavelength: float = spec(0.2, doc="typical distance between bumps", unit="m", gt=0.0, le=10.0)
+    cell_size: float = spec(0.02, doc="heightfield resolution", unit="m", ge=0.005, le=0.5)
+    seed: int | None = spec(None, doc="random seed of the bumps", ge=0, le=2**32 - 1,
+                            default_doc="the scenario seed")
+
+    def _problems(self, ctx: Any) -> Iterator[Problem]:
+        if self.cell_size > self.wavelength:
+            yield ("cell_size",), f"cell_size {self.cell_size:g} m is coarser than wavelength {self.wavelength:g} m", \
+                "use a cell_size at most the wavelength"
+        cells = math.ceil(self.length / self.cell_size) * math.ceil(self.width / self.cell_size)
+        if cells > MAX_HFIELD_CELLS:
+            yield ("cell_size",), f"heightfield would have {cells} cells, more than {MAX_HFIELD_CELLS}", \
+                "use a larger cell_size or a shorter/narrower patch"
+
+    def _finalize(self, ctx: Any) -> Rough:
+        if self.seed is None and isinstance(ctx.top.get("seed"), int):
+            return dataclasses.replace(self, seed=ctx.top["seed"])
+        return self
+
+
+@_frozen
+class Blocks(TerrainPiece):
+    """A row of blocks along x, each `heights[i]` above the level (stepping stones when gap > 0)."""
+
+    kind: ClassVar[str] = "blocks"
+    start: float = spec(**_START)
+    heights: tuple[float, ...] = spec(doc="height of each block above the level", unit="m", ge=0.0, le=1.0,
+                                      min_items=1)
+    block_length: float = spec(0.3, doc="length of one block along x", unit="m", gt=0.0, le=10.0)
+    gap: float = spec(0.0, doc="gap between blocks (down to the level)", unit="m", ge=0.0, le=10.0)
+    width: float = spec(3.0, **_WIDTH)
+
+    @property
+    def length_x(self) -> float:
+        n = len(self.heights)
+        return n * self.block_length + (n - 1) * self.gap
+
+
+@_frozen
+class FrictionPatch(TerrainPiece):
+    """A stretch of different friction (e.g. ice 0.1)."""
+
+    kind: ClassVar[str] = "friction_patch"
+    start: float = spec(**_START)
+    length: float = spec(**_LENGTH)
+    width: float = spec(3.0, **_WIDTH)
+    friction: float = spec(doc="sliding friction coefficient", gt=0.0, le=5.0)
+
+
+@_frozen
+class SoftPatch(TerrainPiece):
+    """A stretch of compliant ground (MuJoCo contact solref timeconst/dampratio)."""
+
+    kind: ClassVar[str] = "soft_patch"
+    start: float = spec(**_START)
+    length: float = spec(**_LENGTH)
+    width: float = spec(3.0, **_WIDTH)
+    timeconst: float = spec(0.05, doc="contact time constant (larger is softer)", unit="s", gt=0.0, le=1.0)
+    dampratio: float = spec(1.0, doc="contact damping ratio", gt=0.0, le=10.0)
+
+    def _problems(self, ctx: Any) -> Iterator[Problem]:
+        dt = ctx.top.get("timestep")
+        if isinstance(dt, float) and self.timeconst < 2 * dt:
+            yield ("timeconst",), f"timeconst {self.timeconst:g} s is shorter than 2 timesteps ({2 * dt:g} s)", \
+                "MuJoCo would silently stiffen it; use at least twice the timestep"
+
+
+TERRAIN_KINDS: dict[str, type] = {c.kind: c for c in (Slope, Stairs, Rough, Blocks, FrictionPatch, SoftPatch)}
+AnyTerrain = Union[Slope, Stairs, Rough, Blocks, FrictionPatch, SoftPatch]
+
+
+def _terrain_order(items: list[tuple[int, Any]]) -> Iterator[Problem]:
+    prev = None
+    for i, piece in items:
+        if prev is not None:
+            j, before = prev
+            if piece.start < before.start:
+                yield (i, piece.kind, "start"), (
+                    f"terrain pieces must be listed in order of start: {piece.start:g} m comes after "
+                    f"terrain.{j} ({before.kind}) starting at {before.start:g} m"), "reorder the list"
+            elif piece.start < before.end - 1e-9:
+                yield (i, piece.kind, "start"), (
+                    f"{piece.kind} starting at {piece.start:g} m overlaps terrain.{j} ({before.kind}, "
+                    f"{before.start:g} to {before.end:g} m)"), f"start it at {before.end:g} m or later"
+        prev = (i, piece)
+
+
+# --------------------------------------------------------------------------- payloads
+
+_AT = dict(doc="time", unit="s", ge=0.0, le=MAX_DURATION_S, time="event")
+
+
+@_frozen
+class Drain:
+    """Mass leaving the payload linearly (a leaking tank)."""
+
+    at: float = spec(**{**_AT, "doc": "time the drain starts"})
+    duration: float = spec(doc="time to reach final_mass", unit="s", gt=0.0, le=MAX_DURATION_S)
+    final_mass: float = spec(doc="mass when drained", unit="kg", ge=0.0, le=1000.0)
+
+
+@_frozen
+class MassStep:
+    """A sudden change of payload mass."""
+
+    at: float = spec(**{**_AT, "doc": "time of the change"})
+    mass: float = spec(doc="new mass", unit="kg", ge=0.0, le=1000.0)
+
+
+_SHIFTING_DEFAULTS = {"axis": "x", "stiffness": 400.0, "damping": 4.0, "travel": 0.05}
+_TRAY_DEFAULTS = {"damping": 2.0, "travel": 0.1}
+
+
+@_frozen
+class Payload:
+    """A load carried on the trunk: rigid, shifting along an axis on a spring, or sliding on a tray."""
+
+    name: str = spec(doc="unique name (addresses it in dotted paths: payloads.<name>.mass)")
+    type: Literal["rigid", "shifting", "tray"] = spec("rigid", doc="how the load moves on the trunk")
+    mass: float = spec(doc="mass", unit="kg", gt=0.0, le=1000.0)
+    size: Vec3 = spec(doc="box full lengths x, y, z", unit="m", gt=0.0, le=5.0)
+    offset: Vec3 = spec((0.0, 0.0, 0.0), doc="box centre in the trunk frame", unit="m", ge=-2.0, le=2.0)
+    attach_at: float | None = spec(None, **{**_AT, "doc": "time it is put on (null: from the start)"})
+    drop_at: float | None = spec(None, **{**_AT, "doc": "time it falls off (null: never)"})
+    drain: Drain | None = spec(None, doc="linear mass loss")
+    steps: tuple[MassStep, ...] | None = spec(None, doc="sudden mass changes, in time order", min_items=1)
+    axis: Literal["x", "y", "z"] | None = spec(None, doc="sliding axis (shifting)", default_doc="x for shifting")
+    stiffness: float | None = spec(None, doc="centring spring (shifting)", unit="N/m", ge=0.0, le=1e6,
+                                   default_doc="400 for shifting")
+    damping: float | None = spec(None, doc="sliding damping (shifting, tray)", unit="N s/m", ge=0.0, le=1e5,
+                                 default_doc="4 for shifting, 2 for tray")
+    travel: float | None = spec(None, doc="half-range to the end stop (shifting, tray)", unit="m", gt=0.0, le=1.0,
+                                default_doc="0.05 for shifting, 0.1 for tray")
+
+    def _problems(self, ctx: Any) -> Iterator[Problem]:
+        if self.name.isdigit():
+            yield ("name",), f"payload name {self.name!r} is all digits", \
+                "dotted paths would read it as a list index; use a word such as 'crate'"
+        allowed = {"rigid": set(), "shifting": set(_SHIFTING_DEFAULTS), "tray": set(_TRAY_DEFAULTS)}[self.type]
+        for key in ("axis", "stiffness", "damping", "travel"):
+            if getattr(self, key) is not None and key not in allowed:
+                users = [t for t, d in (("shifting", _SHIFTING_DEFAULTS), ("tray", _TRAY_DEFAULTS)) if key in d]
+                yield (key,), f"{key!r} does not apply to a {self.type} payload", \
+                    f"only for type {' or '.join(users)}"
+        if self.attach_at is not None and self.drop_at is not None and self.drop_at <= self.attach_at:
+            yield ("drop_at",), f"drop_at {self.drop_at:g} s is not after attach_at {self.attach_at:g} s", \
+                "a payload must be attached before it can drop"
+        if self.drain is not None and self.steps is not None:
+            yield ("steps",), "a payload has either drain or steps, not both", None
+        if self.drain is not None:
+            if self.drain.final_mass > self.mass:
+                yield ("drain", "final_mass"), f"final_mass {self.drain.final_mass:g} kg is more than mass " \
+                    f"{self.mass:g} kg", "a drain only removes mass"
+            if self.attach_at is not None and self.drain.at < self.attach_at:
+                yield ("drain", "at"), f"drain starts at {self.drain.at:g} s, before attach_at {self.attach_at:g} s", None
+            if self.drop_at is not None and self.drain.at >= self.drop_at:
+                yield ("drain", "at"), f"drain starts at {self.drain.at:g} s, after drop_at {self.drop_at:g} s", None
+        if self.steps is not None:
+            for k in range(1, len(self.steps)):
+                if self.steps[k].at <= self.steps[k - 1].at:
+                    yield ("steps", k, "at"), f"steps must be in increasing time: {self.steps[k].at:g} s after " \
+                        f"{self.steps[k - 1].at:g} s", None
+            for k, step in enumerate(self.steps):
+                if self.drop_at is not None and step.at >= self.drop_at:
+                    yield ("steps", k, "at"), f"mass step at {step.at:g} s is after drop_at {self.drop_at:g} s", None
+                if self.attach_at is not None and step.at < self.attach_at:
+                    yield ("steps", k, "at"), f"mass step at {step.at:g} s is before attach_at {self.attach_at:g} s", None
+
+    def _finalize(self, ctx: Any) -> Payload:
+        defaults = {"shifting": _SHIFTING_DEFAULTS, "tray": _TRAY_DEFAULTS}.get(self.type, {})
+        fill = {k: v for k, v in defaults.items() if getattr(self, k) is None}
+        return dataclasses.replace(self, **fill) if fill else self
+
+
+def _payload_names(items: list[tuple[int, Any]]) -> Iterator[Problem]:
+    seen: dict[str, int] = {}
+    for i, p in items:
+        if p.name in seen:
+            yield (i, "name"), f"duplicate payload name {p.name!r} (also payloads.{seen[p.name]})", \
+                "payload names must be unique"
+        else:
+            seen[p.name] = i
+
+
+# --------------------------------------------------------------------------- disturbances
+
+_FORCE = dict(doc="force in the world frame", unit="N", ge=-1e4, le=1e4)
+_POINT = dict(doc="application point in the trunk frame", unit="m", ge=-2.0, le=2.0)
+
+
+@_frozen
+class Push:
+    """A short force on the trunk."""
+
+    kind: ClassVar[str] = "push"
+    at: float = spec(**{**_AT, "doc": "start time"})
+    duration: float = spec(doc="how long the force lasts", unit="s", gt=0.0, le=MAX_DURATION_S)
+    force: Vec3 = spec(**_FORCE)
+    point: Vec3 = spec((0.0, 0.0, 0.0), **_POINT)
+
+
+@_frozen
+class PushTrain:
+    """`count` pushes at random times in [start, end], drawn with the scenario seed."""
+
+    kind: ClassVar[str] = "push_train"
+    start: float = spec(doc="window start", unit="s", ge=0.0, le=MAX_DURATION_S, time="event")
+    end: float = spec(doc="window end", unit="s", gt=0.0, le=MAX_DURATION_S, time="end")
+    count: int = spec(doc="number of pushes", ge=1, le=MAX_LIST_ITEMS)
+    magnitude: Range2 = spec(doc="force magnitude range [lo, hi]", unit="N", ge=0.0, le=1e4)
+    duration: Range2 = spec(doc="push duration range [lo, hi]", unit="s", gt=0.0, le=10.0)
+    direction: Literal["horizontal", "any"] = spec("horizontal", doc="random direction in the xy plane or in 3D")
+    point: Vec3 = spec((0.0, 0.0, 0.0), **_POINT)
+
+    def _problems(self, ctx: Any) -> Iterator[Problem]:
+        if self.end <= self.start:
+            yield ("end",), f"end {self.end:g} s is not after start {self.start:g} s", None
+        for key in ("magnitude", "duration"):
+            lo, hi = getattr(self, key)
+            if lo > hi:
+                yield (key,), f"range [{lo:g}, {hi:g}] has lo > hi", "write [lo, hi]"
+
+
+@_frozen
+class SteadyForce:
+    """A constant force from `at` for `duration` (null: until the end)."""
+
+    kind: ClassVar[str] = "steady_force"
+    at: float = spec(**{**_AT, "doc": "start time"})
+    duration: float | None = spec(None, doc="how long (null: until the end)", unit="s", gt=0.0, le=MAX_DURATION_S)
+    force: Vec3 = spec(**_FORCE)
+    point: Vec3 = spec((0.0, 0.0, 0.0), **_POINT)
+
+
+DISTURBANCE_KINDS: dict[str, type] = {c.kind: c for c in (Push, PushTrain, SteadyForce)}
+AnyDisturbance = Union[Push, PushTrain, SteadyForce]
+
+# --------------------------------------------------------------------------- faults
+
+SENSORS = ("imu_orientation", "imu_gyro", "imu_accel", "joint_pos", "joint_vel")
+Sensor = Literal["imu_orientation", "imu_gyro", "imu_accel", "joint_pos", "joint_vel"]
+
+
+def _parse_joints(v: Any, raw: Any, path: tuple) -> Any:
+    if raw == "all":
+        return "all"
+    if isinstance(raw, str):
+        return v.fail(path, f"expected 'all' or a list of joint names, got {raw!r}", "write [FL_knee] for one joint")
+    return v.convert(tuple[str, ...], raw, path, {"min_items": 1, "max_items": MAX_LIST_ITEMS})
+
+
+_JOINT = dict(doc="joint name from the robot manifest")
+
+
+@_frozen
+class Derate:
+    """Torque limits of some joints scaled by `factor` from `at` on."""
+
+    kind: ClassVar[str] = "derate"
+    at: float = spec(**_AT)
+    joints: Any = spec("all", doc="'all' or a list of joint names", parse=_parse_joints, json={
+        "anyOf": [{"const": "all"}, {"type": "array", "items": {"type": "string"}, "minItems": 1}]})
+    factor: float = spec(doc="torque limit multiplier", ge=0.0, le=1.0)
+
+
+@_frozen
+class Lock:
+    """A joint frozen at its position from `at` on."""
+
+    kind: ClassVar[str] = "lock"
+    at: float = spec(**_AT)
+    joint: str = spec(**_JOINT)
+
+
+@_frozen
+class Limp:
+    """A joint producing no torque from `at` on."""
+
+    kind: ClassVar[str] = "limp"
+    at: float = spec(**_AT)
+    joint: str = spec(**_JOINT)
+
+
+@_frozen
+class Latency:
+    """Observations reach the controller `delay` late from `at` on."""
+
+    kind: ClassVar[str] = "latency"
+    at: float = spec(**_AT)
+    delay: float = spec(doc="added observation delay", unit="s", ge=0.0, le=1.0)
+
+
+@_frozen
+class SensorNoise:
+    """Gaussian noise (plus a bias) on one sensor from `at` on."""
+
+    kind: ClassVar[str] = "sensor_noise"
+    at: float = spec(0.0, **_AT)
+    sensor: Sensor = spec(doc="which sensor")
+    std: float = spec(doc="noise standard deviation, in the sensor's unit", ge=0.0, le=1e3)
+    bias: float = spec(0.0, doc="constant offset, in the sensor's unit", ge=-1e3, le=1e3)
+
+
+@_frozen
+class SensorFreeze:
+    """One sensor stuck at its last value from `at` on."""
+
+    kind: ClassVar[str] = "sensor_freeze"
+    at: float = spec(**_AT)
+    sensor: Sensor = spec(doc="which sensor")
+
+
+FAULT_KINDS: dict[str, type] = {c.kind: c for c in (Derate, Lock, Limp, Latency, SensorNoise, SensorFreeze)}
+AnyFault = Union[Derate, Lock, Limp, Latency, SensorNoise, SensorFreeze]
+
+# --------------------------------------------------------------------------- commands
+
+
+@_frozen
+class Command:
+    """A body-frame velocity command held until the next one."""
+
+    at: float = spec(**{**_AT, "doc": "time the command starts"})
+    vx: float = spec(0.0, doc="forward velocity", unit="m/s", ge=-10.0, le=10.0)
+    vy: float = spec(0.0, doc="sideways velocity", unit="m/s", ge=-10.0, le=10.0)
+    yaw_rate: float = spec(0.0, doc="turn rate", unit="rad/s", ge=-20.0, le=20.0)
+
+
+def _commands_sorted(items: list[tuple[int, Any]]) -> Iterator[Problem]:
+    for (_, a), (i, b) in zip(items, items[1:]):
+        if b.at <= a.at:
+            yield (i, "at"), f"commands must be in increasing time: {b.at:g} s comes after {a.at:g} s", None
+
+
+# --------------------------------------------------------------------------- criteria
+
+
+@dataclass(frozen=True)
+class CriterionInfo:
+    name: str
+    boolean: bool
+    doc: str
+    ge: float | None = 0.0
+    le: float | None = None
+    unit: str | None = None
+
+
+#: Default start of the scoring window, s (skips the first settling of the stance).
+DEFAULT_SCORE_FROM_S = 0.5
+
+#: Criterion names a scenario may use: the built-ins below, plus every name in the entry point
+#: group ``bench.criteria`` (read from package metadata, nothing imported), plus `register_criterion`.
+CRITERIA: dict[str, CriterionInfo] = {}
+
+
+def register_criterion(name: str, *, boolean: bool = False, doc: str = "", ge: float | None = 0.0,
+                       le: float | None = None, unit: str | None = None) -> None:
+    """Make `name` a valid key of `criteria:` (boolean ones take `true`, others a limit)."""
+    CRITERIA[name] = CriterionInfo(name, boolean, doc, ge, le, unit)
+
+
+for _name, _bool, _doc, _le, _unit in (
+    ("no_fall", True, "the trunk/thighs never touch the ground", None, None),
+    ("height_error_max", False, "max |trunk height - nominal height|", None, "m"),
+    ("height_error_rms", False, "RMS trunk height error", None, "m"),
+    ("roll_error_max_deg", False, "max |roll|", 180.0, "deg"),
+    ("pitch_error_max_deg", False, "max |pitch| of the trunk against level", 180.0, "deg"),
+    ("roll_error_mean_deg", False, "mean |roll|", 180.0, "deg"),
+    ("pitch_error_mean_deg", False, "mean |pitch| of the trunk against level", 180.0, "deg"),
+    ("drift_max", False, "max horizontal drift from the start while commanded to stand", None, "m"),
+    ("distance_min", False, "net horizontal distance travelled, at least", None, "m"),
+    ("velocity_rmse_max", False, "RMS error of heading-frame velocity vs command, once settled", None, "m/s"),
+    ("yaw_rate_rmse_max", False, "RMS error of yaw rate vs command", None, "rad/s"),
+    ("torque_saturation_max", False, "fraction of ticks with any joint at its torque limit", 1.0, None),
+    ("controller_p99_ms_max", False, "99th percentile controller compute time", None, "ms"),
+    ("pass_rate_min", False, "fraction of trials that pass", 1.0, None),
+):
+    register_criterion(_name, boolean=_bool, doc=_doc, le=_le, unit=_unit)
+
+
+def _register_plugin_criteria() -> None:
+    from importlib.metadata import entry_points
+
+    try:
+        names = [ep.name for ep in entry_points(group="bench.criteria")]
+    except Exception:  # noqa: BLE001 - broken metadata must not break loading
+        return
+    for name in names:
+        if name not in CRITERIA:
+            register_criterion(name, doc="(from a plugin)", le=None)
+
+
+_register_plugin_criteria()
+
+
+def _parse_criteria(v: Any, raw: Any, path: tuple) -> Any:
+    if raw is None:
+        return {}
+    if not isinstance(raw, dict):
+        return v.fail(path, f"expected a mapping of criterion name -> limit, got {v.describe(raw)}",
+                      "e.g. criteria: {no_fall: true, drift_max: 0.3}")
+    out: dict[str, float | bool] = {}
+    ok = True
+    for name, value in raw.items():
+        p = path + (name,)
+        info = CRITERIA.get(name)
+        if info is None:
+            v.unknown_key(p, name, CRITERIA)
+            ok = False
+            continue
+        if value is None:  # lets a file that extends another drop an inherited criterion
+            continue
+        if info.boolean:
+            if not isinstance(value, bool):
+                v.fail(p, f"{name} is a yes/no criterion: expected true or false, got {v.describe(value)}")
+                ok = False
+            elif value:
+                out[name] = True
+            continue
+        got = v.convert(float, value, p, {"ge": info.ge, "le": info.le, "unit": info.unit})
+        if got is v.INVALID:
+            ok = False
+        else:
+            out[name] = got
+    return out if ok else v.INVALID
+
+
+def _criteria_json() -> dict:
+    props = {}
+    for info in CRITERIA.values():
+        desc = info.doc + (f" [{info.unit}]" if info.unit else "")
+        if info.boolean:
+            props[info.name] = {"description": desc, "type": ["boolean", "null"]}
+        else:
+            s: dict[str, Any] = {"description": desc, "type": ["number", "null"]}
+            if info.ge is not None:
+                s["minimum"] = info.ge
+            if info.le is not None:
+                s["maximum"] = info.le
+            props[info.name] = s
+    return {"type": ["object", "null"], "properties": props, "additionalProperties": False}
+
+
+# --------------------------------------------------------------------------- robot, trials
+
+
+def _parse_robot(v: Any, raw: Any, path: tuple) -> Any:
+    if isinstance(raw, str):
+        if not raw or not all(c.isalnum() or c in "._-" for c in raw) or raw.startswith("."):
+            return v.fail(path, f"robot name {raw!r} is not a bundled model name",
+                          "use a name such as quad12, or {manifest: path/to/manifest.yaml}")
+        return RobotRef(name=raw, manifest=None)
+    if isinstance(raw, dict):
+        extra = [k for k in raw if k != "manifest"]
+        for k in extra:
+            v.unknown_key(path + (k,), k, ["manifest"])
+        if "manifest" not in raw:
+            return v.fail(path, "missing required field 'manifest'", "robot: {manifest: path/to/manifest.yaml}",
+                          field=path + ("manifest",))
+        m = raw["manifest"]
+        if not isinstance(m, str) or not m:
+            return v.fail(path + ("manifest",), f"expected a file path, got {v.describe(m)}")
+        if extra:
+            return v.INVALID
+        file = v.file_of(path + ("manifest",))
+        manifest = (Path(file).parent / m) if file else Path(m)
+        if not manifest.is_file():
+            return v.fail(path + ("manifest",), f"robot manifest {str(manifest)!r} not found",
+                          "the path is relative to the scenario file")
+        return RobotRef(name=None, manifest=manifest)
+    return v.fail(path, f"expected a robot name or {{manifest: path}}, got {v.describe(raw)}")
+
+
+@_frozen
+class Uniform:
+    """A trial value drawn uniformly from [lo, hi]."""
+
+    lo: float
+    hi: float
+
+
+@_frozen
+class Choice:
+    """A trial value drawn from a list."""
+
+    values: tuple
+
+
+def _parse_randomize(v: Any, raw: Any, path: tuple) -> Any:
+    if raw is None:
+        return {}
+    if not isinstance(raw, dict):
+        return v.fail(path, f"expected a mapping of dotted.path -> [lo, hi] or {{choice: [...]}}, "
+                      f"got {v.describe(raw)}")
+    out: dict[str, Uniform | Choice] = {}
+    ok = True
+    for key, value in raw.items():
+        p = path + (key,)
+        if isinstance(value, dict):
+            if set(value) != {"choice"}:
+                for k in value:
+                    if k != "choice":
+                        v.unknown_key(p + (k,), k, ["choice"])
+                if "choice" not in value:
+                    v.fail(p, "missing required field 'choice'", "write {choice: [a, b, c]}", field=p + ("choice",))
+                ok = False
+                continue
+            choices = value["choice"]
+            if not isinstance(choices, list) or not choices:
+                v.fail(p + ("choice",), f"expected a non-empty list, got {v.describe(choices)}")
+                ok = False
+                continue
+            out[key] = Choice(values=tuple(choices))
+        else:
+            pair = v.convert(Range2, value, p, {})
+            if pair is v.INVALID:
+                ok = False
+                continue
+            if pair[0] > pair[1]:
+                v.fail(p, f"range [{pair[0]:g}, {pair[1]:g}] has lo > hi", "write [lo, hi]")
+                ok = False
+                continue
+            out[key] = Uniform(lo=pair[0], hi=pair[1])
+    return out if ok else v.INVALID
+
+
+_NUMBER_PAIR = {"type": "array", "prefixItems": [{"type": "number"}, {"type": "number"}],
+                "minItems": 2, "maxItems": 2, "items": False}
+
+# --------------------------------------------------------------------------- the scenario
+
+
+def _list(check: Any = None, **kw: Any) -> Any:
+    """A list field (stored as a tuple); `check(items)` sees the valid `(index, item)` pairs."""
+    return spec((), check=check, **kw)
+
+
+@_frozen
+class Scenario:
+    """One validated scenario (a matrix variant or a trial is a Scenario of its own).
+
+    YAML fields are declared with `spec`; `id`, `slug`, `source`, `content_hash`,
+    `document`, `variant` and `locations` are filled by the loader.
+    """
+
+    # computed attributes (not YAML keys)
+    id: str = spec("", doc="readable id: name plus [label=value,...] for variants", yaml=False)
+    slug: str = spec("", doc="id made filesystem-safe ([A-Za-z0-9._-]): result folder name", yaml=False)
+    source: str = spec("", doc="path of the scenario file as given", yaml=False)
+    content_hash: str = spec("", doc="sha256 of the merged document as canonical JSON", yaml=False)
+    document: dict = spec(None, default_factory=dict, doc="merged raw document (for derive)", yaml=False)
+    variant: dict = spec(None, default_factory=dict, doc="matrix/trial labels -> values", yaml=False)
+    locations: Any = dataclasses.field(default=None, repr=False, compare=False,
+                                       metadata={"yaml": False, "doc": "value path -> file:line:col"})
+
+    # YAML keys, in validation order (time scale first: later checks use it)
+    duration: float = spec(doc="episode length", unit="s", gt=0.0, le=MAX_DURATION_S)
+    timestep: float = spec(0.001, doc="physics timestep", unit="s", ge=1e-4, le=0.01)
+    control_rate: float = spec(500.0, doc="controller rate; 1/(timestep*control_rate) must be an integer",
+                               unit="Hz", gt=0.0, le=10_000.0)
+    seed: int = spec(0, doc="random seed (push trains, rough terrain, trials)", ge=0, le=2**32 - 1)
+    name: str = spec(doc="scenario name (its id, before any variant suffix)")
+    description: str = spec("", doc="what the scenario tests")
+    tags: tuple[str, ...] = spec((), doc="free labels for selecting scenarios")
+    robot: RobotRef = spec(RobotRef(name="quad12"), doc="a bundled robot name (quad12) or {manifest: path}",
+                           parse=_parse_robot, json={"anyOf": [
+                               {"type": "string", "pattern": "^[A-Za-z0-9_-][A-Za-z0-9._-]*$"},
+                               {"type": "object", "properties": {"manifest": {"type": "string"}},
+                                "required": ["manifest"], "additionalProperties": False}]})
+    ground: Ground = spec(Ground(), doc="ground outside terrain pieces")
+    initial: Initial = spec(Initial(), doc="trunk start pose")
+    score_from: float | None = spec(None, doc="error metrics are computed over t >= score_from "
+                                    "(default 0.5 s, or half the duration when that is shorter)", unit="s", ge=0.0,
+                                    le=MAX_DURATION_S)
+    terrain: tuple[AnyTerrain, ...] = _list(_terrain_order, doc="terrain pieces along +x, in order of start")
+    payloads: tuple[Payload, ...] = _list(_payload_names, doc="loads carried on the trunk")
+    disturbances: tuple[AnyDisturbance, ...] = _list(doc="external forces on the trunk")
+    faults: tuple[AnyFault, ...] = _list(doc="actuator and sensor faults")
+    commands: tuple[Command, ...] = _list(_commands_sorted, doc="velocity commands (zero until the first)")
+    criteria: dict = spec(None, default_factory=dict, doc="criterion name -> limit (or true)",
+                          parse=_parse_criteria, json={"$ref": "#/$defs/criteria"})
+    trials: int = spec(1, doc="number of trials (each a derived scenario with its own seed)", ge=1, le=10_000)
+    randomize: dict = spec(None, default_factory=dict,
+                           doc="dotted.path -> [lo, hi] or {choice: [...]}, drawn per trial",
+                           parse=_parse_randomize, json={
+                               "type": ["object", "null"], "additionalProperties": {"anyOf": [
+                                   _NUMBER_PAIR,
+                                   {"type": "object", "properties": {"choice": {"type": "array", "minItems": 1}},
+                                    "required": ["choice"], "additionalProperties": False}]}})
+
+    @property
+    def score_from_s(self) -> float:
+        """Start of the scoring window: ``score_from`` as written, else 0.5 s or half the duration."""
+        if self.score_from is not None:
+            return float(self.score_from)
+        return min(DEFAULT_SCORE_FROM_S, self.duration / 2.0)
+
+    @property
+    def substeps(self) -> int:
+        """Physics steps per control tick."""
+        return max(1, round(1.0 / (self.timestep * self.control_rate)))
+
+    @property
+    def control_dt(self) -> float:
+        return self.substeps * self.timestep
+
+    def error(self, field: str, message: str, hint: str | None = None):
+        """A `ScenarioError` located at the dotted `field` (for later stages, e.g. an unknown joint name).
+
+        `field` is a dotted path as in `matrix:` (`faults.0.lock.joint`, `payloads.crate.mass`); a field
+        that was not written (a default) is located at its nearest written parent.
+        """
+        from bench.errors import ScenarioError
+        from bench.scenario.paths import resolve_path
+
+        try:
+            parts = resolve_path(self.document, field) if field else ()
+        except ScenarioError:  # not in the document (a default): fall back to the nearest written parent
+            parts = tuple(int(p) if p.isdigit() else p for p in field.split("."))
+        loc = self.locations.value(parts) if self.locations is not None else None
+        if loc is None:
+            return ScenarioError(self.source, 1, 1, field, message, hint)
+        return ScenarioError(loc.file, loc.line, loc.col, field, message, hint)
+
+    @staticmethod
+    def _value_problems(values: dict[str, Any]) -> Iterator[Problem]:
+        """Checks on top-level values; run even when other fields are invalid (so all errors show at once)."""
+        duration, score_from = values.get("duration"), values.get("score_from")
+        if duration is not None and score_from is not None and score_from >= duration:
+            # a default never fails this: it shrinks to half of a short duration
+            yield ("score_from",), f"score_from {score_from:g} s is not before the end of the scenario " \
+                f"(duration {duration:g} s)", "set score_from below the duration"
+        timestep, rate = values.get("timestep"), values.get("control_rate")
+        if timestep is None or rate is None:
+            return
+        ratio = 1.0 / (timestep * rate)
+        if abs(ratio - round(ratio)) > 1e-6 * max(1.0, ratio) or round(ratio) < 1:
+            yield ("control_rate",), (
+                f"control_rate {rate:g} Hz with timestep {timestep:g} s gives "
+                f"{ratio:.4g} physics steps per control tick, not a whole number"), _rate_hint(timestep, ratio)
+
+
+def _rate_hint(timestep: float, ratio: float) -> str:
+    """Suggest the whole-number control rates nearest to the asked one."""
+    physics_hz = 1.0 / timestep
+    good = []
+    for n in range(1, 1001):
+        hz = physics_hz / n
+        if abs(hz - round(hz)) < 1e-9 * physics_hz:
+            good.append((abs(n - ratio), round(hz)))
+    if not good:
+        return f"use 1/timestep divided by a whole number ({physics_hz:g} Hz / n)"
+    best = sorted(sorted(good)[:2], key=lambda g: -g[1])
+    return "e.g. control_rate " + " or ".join(f"{hz} Hz" for _, hz in best)
+
+
+# The validator's hooks, by class: which classes are one-key unions and what their table is.
+UNIONS: dict[Any, dict[str, type]] = {
+    AnyTerrain: TERRAIN_KINDS,
+    AnyDisturbance: DISTURBANCE_KINDS,
+    AnyFault: FAULT_KINDS,
+}

@@ -1,0 +1,38 @@
+"""Checks of a scenario against its robot: names only the manifest can confirm.
+
+The scenario layer knows nothing of robots, so a joint named in a fault or a
+robot that does not exist is caught here, before anything runs, and reported
+at the line of the scenario file that names it.
+"""
+
+from __future__ import annotations
+
+from difflib import get_close_matches
+
+from bench.errors import ScenarioError
+from bench.robot.locate import resolve_robot
+from bench.robot.manifest import RobotError
+
+
+def check_against_robot(scenario) -> list[ScenarioError]:
+    errors: list[ScenarioError] = []
+    ref = scenario.robot
+    try:
+        manifest = resolve_robot(str(ref.manifest) if getattr(ref, "manifest", None) else (ref.name or "quad12"))
+    except (RobotError, FileNotFoundError, OSError, ValueError, LookupError) as exc:
+        return [scenario.error("robot", f"robot cannot be loaded: {exc}")]
+    joints = list(manifest.joints)
+
+    def check_joint(field: str, name: str) -> None:
+        if name not in joints:
+            near = get_close_matches(name, joints, n=1)
+            hint = f"did you mean {near[0]!r}?" if near else f"joints of {manifest.name}: {', '.join(joints)}"
+            errors.append(scenario.error(field, f"robot {manifest.name!r} has no joint {name!r}", hint))
+
+    for i, f in enumerate(scenario.faults):
+        if f.kind in ("lock", "limp"):
+            check_joint(f"faults.{i}.{f.kind}.joint", f.joint)
+        elif f.kind == "derate" and f.joints != "all":
+            for j, name in enumerate(f.joints):
+                check_joint(f"faults.{i}.derate.joints.{j}", name)
+    return errors
