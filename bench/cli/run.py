@@ -26,7 +26,33 @@ def register(sub) -> None:
                    help="wall-clock limit for one controller call, s (default 2)")
     p.add_argument("--episode-timeout", type=float, default=600.0, metavar="S",
                    help="wall-clock limit for one episode, s (default 600)")
+    add_execution_options(p)
+    p.add_argument("--only", action="append", default=[], metavar="ID",
+                   help="run only the scenario or trial with this id (or result folder name), e.g. "
+                        "'full-course[trial=3]' (repeatable)")
     p.set_defaults(func=run)
+
+
+def _positive_int(text: str) -> int:
+    import argparse
+
+    try:
+        n = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    if n < 1:
+        raise argparse.ArgumentTypeError(f"must be at least 1, got {n}")
+    return n
+
+
+def add_execution_options(p) -> None:
+    """``--workers`` and ``--cluster`` (shared with ``bench limit``)."""
+    p.add_argument("--workers", type=_positive_int, default=None, metavar="N",
+                   help="episodes run at once in worker processes (default: the core count; 1 = serial, "
+                        "in this process)")
+    p.add_argument("--cluster", default=None, metavar="local|tcp://HOST:PORT",
+                   help="run on Dask: 'local' starts a local cluster (--workers processes), an address "
+                        "connects to a running scheduler")
 
 
 def deciding_text(result: dict) -> str:
@@ -45,33 +71,90 @@ def deciding_text(result: dict) -> str:
 
 
 def run(args) -> int:
-    from bench.execute.executors import make_executor
+    from bench.cli import UsageError
+    from bench.execute import trials as trials_mod
+    from bench.execute.executors import ExecutorError, make_executor
     from bench.execute.job import Job, run_job
-    from bench.report.results import write_outcome, write_summary
+    from bench.execute.outcomes import error_outcome
+    from bench.execute.progress import Progress
+    from bench.report.results import write_json, write_outcome, write_summary
     from bench.sim.episode import EpisodeLimits
 
     scenarios = load_or_report(args.paths, args.root)
     if scenarios is None:
         return 2
+    episodes, seeds, groups = trials_mod.plan(scenarios, args.seed)
+    if args.only:
+        episodes, seeds, groups, unknown = trials_mod.select(episodes, seeds, groups, args.only)
+        if unknown:
+            raise UsageError(f"--only: no scenario or trial with id {', '.join(map(repr, unknown))} in "
+                             f"{' '.join(args.paths)}" + _close_ids(unknown, scenarios))
+    limits = EpisodeLimits(tick_timeout_s=args.tick_timeout, episode_timeout_s=args.episode_timeout)
+    jobs = [Job(sc, args.controller, seed, limits) for sc, seed in zip(episodes, seeds)]
+    try:
+        executor = make_executor(getattr(args, "workers", None), getattr(args, "cluster", None))
+    except ExecutorError as exc:
+        raise UsageError(str(exc)) from None
     out = Path(args.out)
     out.mkdir(parents=True, exist_ok=True)
-    limits = EpisodeLimits(tick_timeout_s=args.tick_timeout, episode_timeout_s=args.episode_timeout)
-    jobs = [Job(sc, args.controller, args.seed, limits) for sc in scenarios]
-    executor = make_executor(getattr(args, "workers", None), getattr(args, "cluster", None))
+    trial_of = {i: g.scenario for g in groups for i in g.indices}
     results: list[dict | None] = [None] * len(jobs)
+    progress = Progress(len(jobs))
     try:
-        for i, outcome in executor.map(run_job, jobs):
-            write_outcome(out, scenarios[i].slug, outcome)
+        for i, outcome in executor.map(run_job, jobs, on_error=error_outcome):
+            if i in trial_of:
+                outcome.result["trial_of"] = trial_of[i]
+            write_outcome(out, episodes[i].slug, outcome)
             results[i] = outcome.result
+            progress.update(passed=outcome.result["status"] == "passed")
     finally:
+        progress.close()
         executor.close()
-    entries = [(sc.slug, r) for sc, r in zip(scenarios, results)]
+    entries = [(sc.slug, r) for sc, r in zip(episodes, results)]
     summary = write_summary(out, entries)
-    rows = [[sc.id, r["status"], deciding_text(r), f"{r['realtime_factor']:.1f}x"] for sc, r in zip(scenarios, results)]
+    trial_summaries = trials_mod.group_summaries(groups, results)
+    if trial_summaries:
+        summary["trials"] = trial_summaries
+        write_json(out / "summary.json", summary)
+    rows = [[sc.id, r["status"], deciding_text(r), f"{r['realtime_factor']:.1f}x"] for sc, r in zip(episodes, results)]
     print_table(rows, ["scenario", "status", "deciding criterion (value / limit)", "realtime"])
+    if trial_summaries:
+        print()
+        print_trials(trial_summaries)
     print(f"results in {out}/")
     line = f"{summary['passed']} passed, {summary['failed']} failed"
     if summary["errors"]:
         line += f", {summary['errors']} errors"
+    if trial_summaries:
+        ok_groups = sum(t["verdict"] == "passed" for t in trial_summaries)
+        line += f" (episodes); {ok_groups} of {len(trial_summaries)} trial scenarios passed"
     print(line)
-    return 0 if summary["passed"] == summary["total"] else 1
+    in_group = set(trial_of)
+    plain_ok = all(r["status"] == "passed" for i, r in enumerate(results) if i not in in_group)
+    groups_ok = all(t["verdict"] == "passed" for t in trial_summaries)
+    return 0 if plain_ok and groups_ok else 1
+
+
+def _close_ids(unknown: list[str], scenarios) -> str:
+    import difflib
+
+    ids = [sc.id for sc in scenarios]
+    close = difflib.get_close_matches(unknown[0], ids, n=3, cutoff=0.5)
+    if close:
+        return f"; did you mean {', '.join(close)}? (a trial id is the scenario id plus [trial=K], K from 0)"
+    return "; see `bench list scenarios`"
+
+
+def print_trials(trial_summaries: list[dict], file=None) -> None:
+    """The trials table: rate, 95 % Wilson interval, required rate, verdict and failing trial ids."""
+    rows = []
+    for t in trial_summaries:
+        lo, hi = t["interval"]
+        req = "all" if t["required"] is None else f"{t['required']:g}"
+        failing = ", ".join(t["failing"][:4]) + (f", +{len(t['failing']) - 4} more" if len(t["failing"]) > 4 else "")
+        rows.append([t["scenario"], f"{t['passed']}/{t['trials']}", f"{t['rate']:.2f}", f"[{lo:.2f}, {hi:.2f}]",
+                     req, t["verdict"], failing or "-"])
+    print("trials (95 % Wilson interval of the pass rate; pass_rate_min is checked against its lower bound)",
+          file=file)
+    print_table(rows, ["scenario", "passed", "rate", "95 % interval", "required", "verdict", "failing trials"],
+                file=file)

@@ -3,7 +3,8 @@
 A name resolves, in this order, to: a controller registered in this process
 with :func:`register`; an entry point in the group ``bench.controllers`` (the
 bench's own controllers are registered this way, exactly as a user's would be);
-or a ``package.module:attribute`` reference. The factory is called with no
+a ``package.module:attribute`` reference; or ``exec:program args``, an external program
+(:mod:`bench.controllers.external`). The factory is called with no
 arguments and must return an object following :class:`bench.controllers.base.Controller`.
 """
 
@@ -70,6 +71,10 @@ def resolve(name: str) -> Callable[[], object]:
             raise ControllerNotFound(
                 f"controller {name!r}: its entry point {eps[name].value} cannot be loaded: {exc}"
             ) from None
+    if name.startswith("exec:"):   # an external program speaking the QBX line protocol
+        from bench.controllers.external import from_spec
+
+        return from_spec(name[len("exec:"):])
     if ":" in name:
         module_name, _, attr = name.partition(":")
         try:

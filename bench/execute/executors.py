@@ -1,36 +1,99 @@
 """Executors: one interface in front of serial, local-process and Dask execution.
 
-An executor runs ``run_job`` over many jobs and yields ``(index, outcome)`` as
-each finishes. Results never depend on which executor ran them: every job is
-a pure function of (scenario, controller, seed).
+An executor runs a function over many jobs and yields ``(index, outcome)`` as
+each finishes (in completion order; the caller puts them back in job order).
+Results never depend on which executor ran them: every job is a pure function
+of (scenario, controller, seed), and no executor passes anything else along.
+
+Each back end is a short module of its own with the same shape:
+
+- :class:`SerialExecutor` (here): one job after another in this process;
+- :class:`bench.execute.process.ProcessExecutor`: a local process pool;
+- :class:`bench.execute.dask_cluster.DaskExecutor`: a Dask distributed cluster.
+
+``on_error(job, reason) -> outcome`` turns a job that produced no result
+(its worker process died, it could not be sent to a worker, the function
+raised) into an outcome of its own, so that the rest of the run goes on.
+Without it, the failure is raised.
 """
 
 from __future__ import annotations
 
-from typing import Callable, Iterable, Iterator, Protocol
+import os
+from typing import Callable, Iterator, Protocol
+
+OnError = Callable[[object, str], object]
 
 
 class Executor(Protocol):
     name: str
+    workers: int
 
-    def map(self, fn: Callable, jobs: list) -> Iterator[tuple[int, object]]: ...
+    def map(self, fn: Callable, jobs: list, on_error: OnError | None = None) -> Iterator[tuple[int, object]]: ...
 
     def close(self) -> None: ...
 
 
+class ExecutorError(Exception):
+    """The executor cannot be set up (no such cluster, Dask not installed): a message for the user."""
+
+
+def default_workers() -> int:
+    """The number of cores this process may run on."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except (AttributeError, OSError):
+        return max(1, os.cpu_count() or 1)
+
+
+def describe_exception(exc: BaseException) -> str:
+    text = str(exc).strip().splitlines()
+    return f"{type(exc).__name__}: {text[0]}" if text else type(exc).__name__
+
+
 class SerialExecutor:
-    """Runs jobs one after another in this process."""
+    """Runs jobs one after another in this process (no isolation: a crash ends the run)."""
 
     name = "serial"
+    workers = 1
 
-    def map(self, fn: Callable, jobs: list) -> Iterator[tuple[int, object]]:
+    def map(self, fn: Callable, jobs: list, on_error: OnError | None = None) -> Iterator[tuple[int, object]]:
         for i, job in enumerate(jobs):
-            yield i, fn(job)
+            try:
+                out = fn(job)
+            except Exception as exc:  # noqa: BLE001 - one job's fault is that job's outcome
+                if on_error is None:
+                    raise
+                out = on_error(job, f"the episode raised {describe_exception(exc)}")
+            yield i, out
 
     def close(self) -> None:
         pass
 
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
 
 def make_executor(workers: int | None = None, cluster: str | None = None) -> Executor:
-    """The executor for ``--workers N`` / ``--cluster ADDR`` (serial until the others land)."""
-    return SerialExecutor()
+    """The executor for ``--workers N`` / ``--cluster local|tcp://HOST:PORT``.
+
+    ``workers`` defaults to the core count; 1 means serial (in this process).
+    With ``cluster``, ``workers`` is the number of local Dask workers
+    (``local``) and is ignored for an existing scheduler's address.
+    Raises :class:`ExecutorError` with a message for the user.
+    """
+    if workers is not None and int(workers) < 1:
+        raise ExecutorError(f"--workers must be at least 1, got {workers}")
+    if cluster:
+        from bench.execute.dask_cluster import DaskExecutor
+
+        return DaskExecutor(cluster, workers=workers)
+    n = default_workers() if workers is None else int(workers)
+    if n == 1:
+        return SerialExecutor()
+    from bench.execute.process import ProcessExecutor
+
+    return ProcessExecutor(n)

@@ -36,7 +36,8 @@ MAX_VARIANTS = 1000
 MAX_EXPANDED_VALUES = 2_000_000  # variants x values per variant: bounds the memory a matrix may take
 
 REPO_ROOT = Path(bench.__file__).resolve().parents[1]
-BUNDLED_ROOTS = (REPO_ROOT / "models", REPO_ROOT / "scenarios")
+_PACKAGE_DATA = Path(bench.__file__).resolve().parent / "_data"  # where a wheel install keeps them
+BUNDLED_ROOTS = (REPO_ROOT / "models", REPO_ROOT / "scenarios", _PACKAGE_DATA / "models", _PACKAGE_DATA / "scenarios")
 
 
 def allowed_roots(scenario_file: str | Path, roots: Iterable[str | Path] = ()) -> list[Path]:

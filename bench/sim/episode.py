@@ -271,7 +271,8 @@ def run_episode(world, scenario, controller, robot, *, seed: int | None = None,
         try:
             tau = controller.step(obs, command)
         except Exception as exc:  # noqa: BLE001
-            status, reason = "error", f"controller raised {type(exc).__name__} at tick {k} (t={t:.3f} s): {exc}"
+            status = "timeout" if isinstance(exc, TimeoutError) else "error"   # e.g. an external program's wait
+            reason = f"controller raised {type(exc).__name__} at tick {k} (t={t:.3f} s): {exc}"
             break
         c1 = time.perf_counter()
         ctrl_ms[k] = (c1 - c0) * 1e3
