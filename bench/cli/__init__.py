@@ -58,6 +58,13 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("bench: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # The reader went away (``bench list | head``): stop quietly, as Unix tools do.
+        import os
+
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 0
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -1,0 +1,366 @@
+"""A controller that is a separate program, spoken to over its stdin/stdout (protocol ``QBX`` version 1).
+
+The bench starts the program once per episode (in ``reset``), sends it a
+handshake describing the robot and the rates, then, every control tick, one
+observation line; the program answers each with one torque line. Any language
+that can read and write lines of text works (C++: ``std::getline`` and
+``std::strtod``). The full protocol, as the README documents it:
+
+Lines are UTF-8 text ending in ``\\n``; fields are separated by single spaces;
+numbers are decimal floats as C's ``strtod`` reads them (the bench writes the
+shortest text that reads back to the same double, so nothing is lost).
+
+Handshake, bench -> program (``J`` joints, ``F`` feet)::
+
+    QBX 1
+    robot <name>
+    joints <J> <joint name> ... (manifest order)
+    feet <F> <foot name> ...
+    control_rate_hz <float>
+    control_dt_s <float>
+    torque_limits <J floats, N m>
+    nominal_pose <J floats, rad>
+    nominal_height_m <float>
+    mass_kg <float>
+    end
+
+A program must ignore header lines it does not know (later versions of
+protocol 1 may add some before ``end``). It then answers ``READY 1`` (the
+protocol version it speaks; anything after it on the line is ignored).
+
+Each control tick ``k`` (0, 1, 2, ...), bench -> program, one line::
+
+    OBS <k> <t> <vx> <vy> <yaw_rate> <quat w x y z> <gyro x y z> <accel x y z>
+        <joint_pos J> <joint_vel J> <foot_contact F: 1.0 touching, 0.0 not> <base_pos x y z> <base_linvel x y z>
+
+(the command is body frame; the quaternion is the trunk orientation in the
+world; gyro and accel are body frame; ``base_pos`` and ``base_linvel`` are
+privileged true state, world frame.) The program answers::
+
+    TAU <k> <J floats, N m, manifest order>
+
+Lines the program writes that start with ``#`` are ignored (log to stderr
+rather than stdout all the same). At the end of an episode the bench sends
+``BYE`` and closes the program's stdin; the program may answer one line
+``STATS <name>=<float> ...`` (reported as ``controller.<name>`` metrics) and
+should exit within a second; it is killed otherwise.
+
+Failures end the episode with a reason: the program cannot be started, exits
+(its exit code and last lines of stderr are quoted), answers something
+malformed (the line is quoted), answers for another tick, or does not answer
+within the per-tick timeout (``ExternalControllerTimeout``, a ``TimeoutError``:
+status ``timeout``).
+"""
+
+from __future__ import annotations
+
+import os
+import select
+import shlex
+import subprocess
+import tempfile
+import time
+import weakref
+from pathlib import Path
+
+import numpy as np
+
+from bench.controllers.base import Observation
+
+PROTOCOL = "QBX"
+PROTOCOL_VERSION = 1
+PREFIX = "exec:"
+#: Default wait for one torque line, s (the runner's own per-tick limit defaults to the same).
+DEFAULT_TICK_TIMEOUT_S = float(os.environ.get("BENCH_EXEC_TICK_TIMEOUT", "2.0"))
+#: Default wait for the program to start and answer the handshake, s.
+DEFAULT_START_TIMEOUT_S = float(os.environ.get("BENCH_EXEC_START_TIMEOUT", "10.0"))
+#: Wait for the program to exit after BYE before it is killed, s.
+EXIT_GRACE_S = 1.0
+_QUOTE_CHARS = 160
+_STDERR_TAIL_LINES = 8
+
+
+class ExternalControllerError(RuntimeError):
+    """The external program died, could not be started, or broke the protocol."""
+
+
+class ExternalControllerTimeout(ExternalControllerError, TimeoutError):
+    """The external program did not answer in time."""
+
+
+def _quote(line: bytes | str) -> str:
+    text = line.decode("utf-8", "replace") if isinstance(line, bytes) else line
+    text = text.rstrip("\n")
+    return repr(text if len(text) <= _QUOTE_CHARS else text[:_QUOTE_CHARS] + "...")
+
+
+def _num(x: float) -> str:
+    # repr of a Python float is the shortest text that reads back to the same double.
+    return repr(float(x))
+
+
+def _kill(proc: subprocess.Popen | None) -> None:
+    if proc is not None and proc.poll() is None:
+        try:
+            proc.kill()
+            proc.wait(timeout=5)
+        except (OSError, subprocess.SubprocessError):
+            pass
+
+
+class _LineReader:
+    """Reads whole lines from a pipe with a deadline (select on the raw descriptor, no Python buffering)."""
+
+    def __init__(self, fd: int) -> None:
+        self.fd = fd
+        self.buf = bytearray()
+        self.eof = False
+
+    def readline(self, timeout_s: float) -> bytes | None:
+        """A line without its newline; None at end of file; raises TimeoutError after ``timeout_s``."""
+        deadline = time.monotonic() + timeout_s
+        while True:
+            nl = self.buf.find(b"\n")
+            if nl >= 0:
+                line = bytes(self.buf[:nl])
+                del self.buf[:nl + 1]
+                return line
+            if self.eof:
+                if self.buf:
+                    line = bytes(self.buf)
+                    self.buf.clear()
+                    return line
+                return None
+            left = deadline - time.monotonic()
+            if left <= 0:
+                raise TimeoutError
+            ready, _, _ = select.select([self.fd], [], [], left)
+            if not ready:
+                raise TimeoutError
+            chunk = os.read(self.fd, 65536)
+            if chunk:
+                self.buf += chunk
+            else:
+                self.eof = True
+
+
+class ExternalController:
+    """Runs ``argv`` as a controller speaking protocol QBX 1 over stdin/stdout (see the module docstring)."""
+
+    def __init__(self, argv: list[str] | str, *, tick_timeout_s: float | None = None,
+                 start_timeout_s: float | None = None, cwd: str | Path | None = None,
+                 env: dict[str, str] | None = None, name: str | None = None) -> None:
+        self.argv = shlex.split(argv) if isinstance(argv, str) else [str(a) for a in argv]
+        if not self.argv:
+            raise ExternalControllerError("no program given (write exec:path/to/program [args])")
+        self.tick_timeout_s = DEFAULT_TICK_TIMEOUT_S if tick_timeout_s is None else float(tick_timeout_s)
+        self.start_timeout_s = DEFAULT_START_TIMEOUT_S if start_timeout_s is None else float(start_timeout_s)
+        self.cwd = cwd
+        self.env = env
+        self.name = name or PREFIX + shlex.join(self.argv)
+        self.program_name: str | None = None
+        self._proc: subprocess.Popen | None = None
+        self._stderr = None
+        self._reader: _LineReader | None = None
+        self._finalizer = None
+        self._stats: dict[str, float] = {}
+
+    # -- process ---------------------------------------------------------------------
+    def _start(self) -> None:
+        self.close()
+        self._stderr = tempfile.TemporaryFile()
+        try:
+            self._proc = subprocess.Popen(self.argv, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+                                          stderr=self._stderr, cwd=self.cwd, env=self.env, bufsize=0)
+        except OSError as exc:
+            raise ExternalControllerError(f"cannot start {shlex.join(self.argv)!r}: {exc.strerror or exc}") from None
+        self._reader = _LineReader(self._proc.stdout.fileno())
+        self._finalizer = weakref.finalize(self, _kill, self._proc)
+
+    def _stderr_tail(self) -> str:
+        if self._stderr is None:
+            return ""
+        try:
+            self._stderr.seek(0)
+            lines = self._stderr.read().decode("utf-8", "replace").splitlines()[-_STDERR_TAIL_LINES:]
+        except OSError:
+            return ""
+        return ("; its stderr ends: " + " | ".join(lines)) if lines else ""
+
+    def _died(self, when: str) -> ExternalControllerError:
+        code = None
+        if self._proc is not None:
+            try:
+                code = self._proc.wait(timeout=1.0)
+            except subprocess.TimeoutExpired:
+                pass
+        how = f"exited with code {code}" if code is not None else "closed its stdout"
+        return ExternalControllerError(f"controller program {how} {when}{self._stderr_tail()}")
+
+    def _send(self, text: str, when: str) -> None:
+        try:
+            self._proc.stdin.write(text.encode())
+        except (BrokenPipeError, ValueError, OSError):
+            raise self._died(when) from None
+
+    def _receive(self, timeout_s: float, when: str, what: str) -> bytes:
+        while True:
+            try:
+                line = self._reader.readline(timeout_s)
+            except TimeoutError:
+                raise ExternalControllerTimeout(
+                    f"controller program sent no {what} within {timeout_s:g} s {when}{self._stderr_tail()}") from None
+            if line is None:
+                raise self._died(when)
+            if not line.startswith(b"#"):
+                return line
+
+    def _abort(self) -> None:
+        _kill(self._proc)
+        self.close()
+
+    def close(self) -> None:
+        """End the program (BYE, close stdin, wait briefly, then kill)."""
+        proc, self._proc = self._proc, None
+        if proc is not None:
+            if proc.poll() is None:
+                try:
+                    proc.stdin.close()
+                except OSError:
+                    pass
+                try:
+                    proc.wait(timeout=EXIT_GRACE_S)
+                except subprocess.TimeoutExpired:
+                    _kill(proc)
+            for f in (proc.stdout, proc.stdin):
+                try:
+                    f.close()
+                except OSError:
+                    pass
+        if self._finalizer is not None:
+            self._finalizer.detach()
+            self._finalizer = None
+        if self._stderr is not None:
+            self._stderr.close()
+            self._stderr = None
+
+    # -- Controller protocol ---------------------------------------------------------
+    def reset(self, robot, control_dt: float) -> None:
+        man = robot.manifest
+        J, F = len(man.joints), len(man.feet)
+        self._J, self._F = J, F
+        self._stats = {}
+        self._start()
+        feet = [getattr(f, "name", str(f)) for f in man.feet]
+        header = [
+            f"{PROTOCOL} {PROTOCOL_VERSION}",
+            f"robot {man.name}",
+            "joints " + " ".join([str(J), *man.joints]),
+            "feet " + " ".join([str(F), *feet]),
+            f"control_rate_hz {_num(1.0 / control_dt)}",
+            f"control_dt_s {_num(control_dt)}",
+            "torque_limits " + " ".join(map(_num, robot.torque_limits)),
+            "nominal_pose " + " ".join(map(_num, robot.nominal_pose)),
+            f"nominal_height_m {_num(robot.nominal_height)}",
+            f"mass_kg {_num(robot.mass_kg)}",
+            "end",
+        ]
+        try:
+            self._handshake("\n".join(header) + "\n")
+        except BaseException:
+            self._abort()
+            raise
+        self._tick = 0
+        self._tau = np.zeros(J)
+        # One preallocated row of every observation number, in protocol order.
+        self._row = np.zeros(1 + 3 + 4 + 3 + 3 + 2 * J + F + 3 + 3)
+        self._fmt = "OBS %d " + " ".join(["%r"] * len(self._row)) + "\n"
+
+    def _handshake(self, header: str) -> None:
+        when = "during the handshake"
+        self._send(header, when)
+        line = self._receive(self.start_timeout_s, when, "READY line")
+        parts = line.split()
+        if len(parts) < 2 or parts[0] != b"READY":
+            raise ExternalControllerError(f"controller program answered the handshake with {_quote(line)}; "
+                                          f"expected 'READY {PROTOCOL_VERSION}'")
+        if parts[1] != str(PROTOCOL_VERSION).encode():
+            raise ExternalControllerError(f"controller program speaks protocol version {_quote(parts[1])}; "
+                                          f"this bench speaks {PROTOCOL} {PROTOCOL_VERSION}")
+        self.program_name = b" ".join(parts[2:]).decode("utf-8", "replace") or None
+
+    def step(self, obs: Observation, command: np.ndarray) -> np.ndarray:
+        J, F, row, k = self._J, self._F, self._row, self._tick
+        row[0] = obs.t
+        row[1:4] = command
+        row[4:8] = obs.imu_quat
+        row[8:11] = obs.imu_gyro
+        row[11:14] = obs.imu_accel
+        row[14:14 + J] = obs.joint_pos
+        row[14 + J:14 + 2 * J] = obs.joint_vel
+        i = 14 + 2 * J
+        row[i:i + F] = obs.foot_contact
+        row[i + F:i + F + 3] = obs.privileged.base_pos
+        row[i + F + 3:i + F + 6] = obs.privileged.base_linvel
+        # %r of a float is its shortest round-trip text; foot contacts go out as 0.0/1.0.
+        text = self._fmt % (k, *row.tolist())
+        try:
+            self._tau[:] = self._exchange(text, k, obs.t)
+        except BaseException:
+            self._abort()   # the conversation is out of step: end the program now
+            raise
+        self._tick = k + 1
+        return self._tau
+
+    def _exchange(self, text: str, k: int, t: float) -> list[float]:
+        J = self._J
+        when = f"at tick {k} (t={t:.3f} s)"
+        self._send(text, when)
+        line = self._receive(self.tick_timeout_s, when, "TAU line")
+        parts = line.split()
+        if len(parts) != J + 2 or parts[0] != b"TAU":
+            raise ExternalControllerError(f"controller program answered {_quote(line)} {when}; expected "
+                                          f"'TAU {k}' followed by {J} torques")
+        if parts[1] != str(k).encode():
+            raise ExternalControllerError(f"controller program answered for tick {_quote(parts[1])} {when}; "
+                                          f"expected 'TAU {k} ...' (one answer per OBS line, in order)")
+        try:
+            return [float(p) for p in parts[2:]]
+        except ValueError:
+            raise ExternalControllerError(f"controller program answered a non-number in {_quote(line)} {when}") from None
+
+    def stats(self) -> dict[str, float]:
+        """Ends the program (called once by the runner after the last tick) and returns its STATS, if any."""
+        if self._proc is not None and self._proc.poll() is None:
+            try:
+                self._proc.stdin.write(b"BYE\n")
+                self._proc.stdin.close()
+                line = self._receive(EXIT_GRACE_S, "after BYE", "STATS line")
+                parts = line.split()
+                if parts and parts[0] == b"STATS":
+                    for p in parts[1:]:
+                        key, _, value = p.decode("utf-8", "replace").partition("=")
+                        try:
+                            self._stats[key] = float(value)
+                        except ValueError:
+                            continue
+            except (ExternalControllerError, OSError, ValueError):
+                pass   # STATS is optional
+        self.close()
+        return dict(self._stats)
+
+    def __repr__(self) -> str:
+        return f"ExternalController({self.argv!r})"
+
+
+def from_spec(spec: str):
+    """The factory for the registry name ``exec:<command line>`` (``spec`` is the part after ``exec:``)."""
+    argv = shlex.split(spec)
+    if not argv:
+        raise ExternalControllerError("'exec:' needs a program: exec:path/to/program [args]")
+
+    def factory() -> ExternalController:
+        return ExternalController(argv, name=PREFIX + spec)
+
+    factory.__doc__ = f"external program {spec}"
+    return factory

@@ -1,0 +1,222 @@
+"""The pytest plugin in-process (pytester): collection, ids, markers, failure report, JUnit XML, fixture, baseline."""
+
+from __future__ import annotations
+
+import json
+import sqlite3
+import xml.etree.ElementTree as ET
+
+import pytest
+
+# Imported here, before any in-process pytest run: pytester drops the modules a run imported when it
+# ends, and numpy and MuJoCo cannot be loaded twice in one process.
+import bench.controllers.simple  # noqa: F401
+import bench.execute.job  # noqa: F401
+import bench.report.history  # noqa: F401
+import bench.scenario  # noqa: F401
+from bench.cli import main as bench_main
+
+try:   # the hypothesis plugin imports hypothesis at the end of every in-process run: keep it loaded
+    import hypothesis  # noqa: F401
+except ImportError:  # pragma: no cover
+    pass
+
+pytest_plugins = ["pytester"]
+
+BASE = """
+robot: quad12
+duration: 1.0
+timestep: 0.002
+control_rate: 250
+payloads:
+  - {name: crate, mass: 2.0, size: [0.2, 0.15, 0.1], offset: [0, 0, 0.08]}
+criteria:
+  no_fall: true
+  height_error_max: 0.08
+"""
+STAND = """
+extends: _base.yaml
+name: stand
+tags: [payload, smoke]
+matrix:
+  payloads.crate.mass: [1, 3]
+"""
+TIGHT = """
+extends: _base.yaml
+name: tight
+tags: [strict]
+criteria:
+  height_error_max: 0.001
+"""
+PYPROJECT = """
+[tool.pytest.ini_options]
+bench_scenarios = ["scen"]
+bench_controller = "joint-pd"
+bench_out = "out"
+"""
+
+
+@pytest.fixture
+def project(pytester):
+    pytester.makepyprojecttoml(PYPROJECT)
+    scen = pytester.mkdir("scen")
+    (scen / "_base.yaml").write_text(BASE)
+    (scen / "stand.yaml").write_text(STAND)
+    (scen / "tight.yaml").write_text(TIGHT)
+    pytester.makepyfile(test_plain="def test_plain():\n    assert True\n")
+    return pytester
+
+
+def test_harmless_when_not_configured(pytester):
+    (pytester.path / "_base.yaml").write_text(BASE)
+    (pytester.path / "stand.yaml").write_text(STAND)
+    pytester.makepyfile(test_plain="def test_plain():\n    assert True\n")
+    res = pytester.runpytest("-W", "error")
+    res.assert_outcomes(passed=1)
+    assert not (pytester.path / "bench-results").exists()
+
+
+def test_items_ids_and_markers(project):
+    res = project.runpytest("--co", "-q", "--strict-markers")
+    assert res.ret == 0
+    ids = [line for line in res.outlines if "::" in line]
+    # Every matrix variant is its own item; the `_base.yaml` partial is not collected.
+    assert ids == ["scen/stand.yaml::stand[mass=1]", "scen/stand.yaml::stand[mass=3]", "scen/tight.yaml::tight",
+                   "test_plain.py::test_plain"]
+    res = project.runpytest("--co", "-q", "-m", "payload", "--strict-markers")
+    assert [x for x in res.outlines if "::" in x] == ["scen/stand.yaml::stand[mass=1]", "scen/stand.yaml::stand[mass=3]"]
+    res = project.runpytest("--co", "-q", "-m", "not bench")
+    assert [x for x in res.outlines if "::" in x] == ["test_plain.py::test_plain"]
+
+
+def test_failure_report_junit_xml_summary_and_history(project):
+    res = project.runpytest("--junitxml=junit.xml")
+    res.assert_outcomes(passed=3, failed=1)
+    text = res.stdout.str()
+    assert "tight: failed: height_error_max: " in text and "> limit 0.001 m (first at 0.50 s)" in text
+    header = next(line for line in res.outlines if line.startswith("criterion"))
+    assert header.split() == ["criterion", "value", "limit", "first", "violation"]
+    row = next(line for line in res.outlines if line.startswith("height_error_max "))
+    assert row.split()[2:] == ["0.001", "0.500", "s", "FAIL"]
+    assert "trace:  out/tight/trace.npz" in text and "result: out/tight/result.json" in text
+    assert "Traceback" not in text
+    res.stdout.fnmatch_lines(["3 scenario run(s): 1 failed, 2 passed; results in out", "history: out/history.sqlite"])
+
+    suite = ET.parse(project.path / "junit.xml").getroot().find("testsuite")
+    cases = {c.get("name"): c for c in suite.iter("testcase")}
+    assert set(cases) == {"test_plain", "stand[mass=1]", "stand[mass=3]", "tight"}
+    assert cases["tight"].find("failure") is not None and cases["stand[mass=1]"].find("failure") is None
+    props = {p.get("name"): p.get("value") for p in cases["stand[mass=3]"].iter("property")}
+    assert props["bench.status"] == "passed" and props["bench.controller"] == "joint-pd"
+    assert props["bench.criterion.height_error_max"] == "passed"
+    assert 0 < float(props["bench.metric.height_error_max"]) < 0.08
+    assert props["bench.trace"] == "out/stand.mass-3/trace.npz"
+
+    summary = json.loads((project.path / "out" / "summary.json").read_text())
+    assert (summary["total"], summary["passed"], summary["failed"]) == (3, 2, 1)
+    assert [r["result"] for r in summary["results"]] == ["stand.mass-1/result.json", "stand.mass-3/result.json",
+                                                         "tight/result.json"]
+    con = sqlite3.connect(project.path / "out" / "history.sqlite")
+    assert con.execute("SELECT source FROM runs").fetchall() == [("pytest",)]
+    assert con.execute("SELECT scenario, status FROM results ORDER BY scenario").fetchall() == [
+        ("stand[mass=1]", "passed"), ("stand[mass=3]", "passed"), ("tight", "failed")]
+
+
+def test_bad_scenario_is_a_located_collection_error(project):
+    (project.path / "scen" / "broken.yaml").write_text("name: broken\nrobot: quad12\nduration: -1\n")
+    res = project.runpytest("-q")
+    text = res.stdout.str()
+    assert "scen/broken.yaml:3:11: duration:" in text
+    assert "Traceback" not in text and res.ret != 0
+
+
+def test_unknown_controller_fails_items_with_the_reason(project):
+    res = project.runpytest("-q", "--bench-controller", "no-such-ctrl", "-k", "tight")
+    res.assert_outcomes(failed=1, deselected=3)
+    assert "tight: error: controller 'no-such-ctrl' could not be made: unknown controller" in res.stdout.str()
+
+
+def test_explicit_scenario_file_is_collected_without_configuration(pytester):
+    (pytester.path / "_base.yaml").write_text(BASE)
+    (pytester.path / "stand.yaml").write_text(STAND)
+    res = pytester.runpytest("stand.yaml", "-q", "--bench-controller", "joint-pd", "--bench-out", "o", "--bench-no-history")
+    res.assert_outcomes(passed=2)
+    assert (pytester.path / "o" / "summary.json").is_file() and not (pytester.path / "o" / "history.sqlite").exists()
+
+
+def test_bench_run_fixture(project):
+    project.makepyfile(test_fixture="""
+        import pytest
+        from bench.controllers.simple import JointPDController
+
+        def test_soft_gains(bench_run):
+            run = bench_run("scen/stand.yaml", JointPDController(kp=60.0, kd=2.0), variant="mass=3")
+            assert run.passed and run.status == "passed"
+            assert run.criteria["height_error_max"]["limit"] == 0.08
+            assert run.metrics["height_error_max"] < 0.05
+            assert run.trace_path.is_file() and len(run.trace["t"]) == 250
+
+        def test_assert_passed_shows_the_table(bench_run):
+            run = bench_run("scen/tight.yaml")      # the configured controller
+            with pytest.raises(AssertionError) as e:
+                run.assert_passed()
+            assert "height_error_max" in str(e.value) and "FAIL" in str(e.value)
+
+        def test_needs_a_variant(bench_run):
+            bench_run("scen/stand.yaml")
+    """)
+    res = project.runpytest("-q", "test_fixture.py", "--junitxml=j.xml")
+    res.assert_outcomes(passed=2, failed=1)
+    assert "defines stand[mass=1], stand[mass=3]; pick one with variant=" in res.stdout.str()
+    cases = {c.get("name"): c for c in ET.parse(project.path / "j.xml").iter("testcase")}
+    props = [(p.get("name"), p.get("value")) for p in cases["test_soft_gains"].iter("property")]
+    assert props[0] == ("bench.scenario", "stand[mass=3]") and ("bench.controller", "joint-pd") in props
+
+
+def test_baseline_option_fails_a_regressed_item_whose_criteria_pass(project):
+    res = project.runpytest("-q", "-k", "stand")
+    res.assert_outcomes(passed=2, deselected=2)
+    assert bench_main(["baseline", "save", str(project.path / "out"), "-o", str(project.path / "baseline.json")]) == 0
+    project.makepyfile(softpd="""
+        from bench.controllers.simple import JointPDController
+
+        class SoftPD(JointPDController):
+            def __init__(self):
+                super().__init__(kp=40.0, kd=2.0)
+    """)
+    project.syspathinsert()
+    res = project.runpytest("-q", "-k", "stand", "--bench-baseline", "baseline.json",
+                            "--bench-controller", "softpd:SoftPD")
+    res.assert_outcomes(failed=2, deselected=2)
+    text = res.stdout.str()
+    assert "stand[mass=1]: passed its criteria, but regressed against the baseline baseline.json" in text
+    assert "result: out/stand.mass-1/result.json" in text
+    row = next(line for line in res.outlines if line.startswith("regressed") and "height_error_max" in line)
+    assert "stand[mass=1]" in row and "(lower is better)" in row
+    assert "criterion" not in text     # its own criteria passed: only the regression is reported
+    assert "baseline baseline.json: 2 regressed" in text
+    # The same controller as the baseline: nothing regressed.
+    project.runpytest("-q", "-k", "stand", "--bench-baseline", "baseline.json").assert_outcomes(passed=2, deselected=2)
+
+
+def test_bad_configuration_is_a_usage_error(project):
+    res = project.runpytest("--bench-scenarios", "nowhere")
+    assert res.ret == pytest.ExitCode.USAGE_ERROR
+    assert "--bench-scenarios:" in res.stderr.str() and "nowhere: no such file or folder" in res.stderr.str()
+    (project.path / "baseline.json").write_text('{"format": "other"}')
+    res = project.runpytest("--bench-baseline", "baseline.json")
+    assert res.ret == pytest.ExitCode.USAGE_ERROR
+    assert "not a baseline file" in res.stderr.str()
+
+
+def test_glob_and_history_off_from_the_ini_file(pytester):
+    pytester.makepyprojecttoml(PYPROJECT + 'bench_glob = ["*.scenario.yaml"]\nbench_history = "none"\n')
+    scen = pytester.mkdir("scen")
+    (scen / "_base.yaml").write_text(BASE)
+    (scen / "tight.scenario.yaml").write_text(TIGHT)
+    (scen / "robot-notes.yaml").write_text("not: a scenario\n")     # outside the glob: left alone
+    res = pytester.runpytest("-q", "--co")
+    assert [x for x in res.outlines if "::" in x] == ["scen/tight.scenario.yaml::tight"]
+    pytester.runpytest("-q").assert_outcomes(failed=1)
+    assert (pytester.path / "out" / "tight" / "result.json").is_file()
+    assert not (pytester.path / "out" / "history.sqlite").exists()
