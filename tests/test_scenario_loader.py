@@ -110,8 +110,8 @@ def test_robot_manifest_relative_to_file(tmp_path):
 def test_stairs_preset_explicit_rise_wins(tmp_path):
     text = MINIMAL + "terrain:\n  - stairs: {start: 1, steps: 3, preset: ibc-commercial, rise: 0.15}\n"
     [s] = load_file(write(tmp_path, text))
-    assert (s.terrain[0].rise, s.terrain[0].run) == (0.15, 0.279)
-    assert s.terrain[0].end == pytest.approx(1 + 3 * 0.279)
+    assert (s.terrain[0].rise, s.terrain[0].run) == (0.15, 0.280)
+    assert s.terrain[0].end == pytest.approx(1 + 3 * 0.280)
 
 
 # --------------------------------------------------------------------------- unknown keys, types

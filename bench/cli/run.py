@@ -30,7 +30,30 @@ def register(sub) -> None:
     p.add_argument("--only", action="append", default=[], metavar="ID",
                    help="run only the scenario or trial with this id (or result folder name), e.g. "
                         "'full-course[trial=3]' (repeatable)")
+    p.add_argument("--resume", action="store_true",
+                   help="skip scenarios whose result in --out is complete and valid (result.json parses, is for "
+                        "this scenario, seed and controller, and its trace.npz loads) and run the rest; the "
+                        "summary lists all")
+    add_media_options(p)
+    p.add_argument("--history", default=None, metavar="PATH",
+                   help="history database to append this run to (default <out>/history.sqlite)")
+    p.add_argument("--no-history", action="store_true", help="do not record this run in the history database")
     p.set_defaults(func=run)
+
+
+def add_media_options(p) -> None:
+    """``--video``, ``--video-dir`` and ``--plots/--no-plots`` (owned by the render engineer)."""
+    import argparse
+
+    from bench.cli.render import add_video_options
+
+    p.add_argument("--video", choices=("none", "failed", "all"), default="none",
+                   help="review videos after the run: none, only scenarios that did not pass, or all (default none); "
+                        "a video never changes a verdict or the exit code")
+    p.add_argument("--video-dir", default="videos", metavar="DIR", help="where videos go (default videos/)")
+    p.add_argument("--plots", action=argparse.BooleanOptionalAction, default=True,
+                   help="plots.png beside every result.json (default on)")
+    add_video_options(p)
 
 
 def _positive_int(text: str) -> int:
@@ -77,18 +100,23 @@ def run(args) -> int:
     from bench.execute.job import Job, run_job
     from bench.execute.outcomes import error_outcome
     from bench.execute.progress import Progress
+    from bench.execute.schedule import longest_first
     from bench.report.results import write_json, write_outcome, write_summary
     from bench.sim.episode import EpisodeLimits
 
+    if getattr(args, "video", "none") != "none":
+        from bench.cli.render import options_from
+        options_from(args)          # bad video options are invalid input: nothing is run
     scenarios = load_or_report(args.paths, args.root)
     if scenarios is None:
         return 2
     episodes, seeds, groups = trials_mod.plan(scenarios, args.seed)
     if args.only:
+        all_ids = [e.id for e in episodes]
         episodes, seeds, groups, unknown = trials_mod.select(episodes, seeds, groups, args.only)
         if unknown:
             raise UsageError(f"--only: no scenario or trial with id {', '.join(map(repr, unknown))} in "
-                             f"{' '.join(args.paths)}" + _close_ids(unknown, scenarios))
+                             f"{' '.join(args.paths)}" + _close_ids(unknown, all_ids))
     limits = EpisodeLimits(tick_timeout_s=args.tick_timeout, episode_timeout_s=args.episode_timeout)
     jobs = [Job(sc, args.controller, seed, limits) for sc, seed in zip(episodes, seeds)]
     try:
@@ -99,9 +127,15 @@ def run(args) -> int:
     out.mkdir(parents=True, exist_ok=True)
     trial_of = {i: g.scenario for g in groups for i in g.indices}
     results: list[dict | None] = [None] * len(jobs)
-    progress = Progress(len(jobs))
+    todo = list(range(len(jobs)))
+    if getattr(args, "resume", False):
+        todo = _resume(out, episodes, jobs, results)
+    # submission order only (longest first keeps workers busy to the end); results go back by index
+    order = longest_first(jobs, todo) if executor.workers > 1 else todo
+    progress = Progress(len(todo))
     try:
-        for i, outcome in executor.map(run_job, jobs, on_error=error_outcome):
+        for j, outcome in executor.map(run_job, [jobs[i] for i in order], on_error=error_outcome):
+            i = order[j]
             if i in trial_of:
                 outcome.result["trial_of"] = trial_of[i]
             write_outcome(out, episodes[i].slug, outcome)
@@ -112,6 +146,8 @@ def run(args) -> int:
         executor.close()
     entries = [(sc.slug, r) for sc, r in zip(episodes, results)]
     summary = write_summary(out, entries)
+    if not args.no_history:
+        _record_history(args, out, [results[i] for i in todo])   # resumed results are in it already
     trial_summaries = trials_mod.group_summaries(groups, results)
     if trial_summaries:
         summary["trials"] = trial_summaries
@@ -121,6 +157,7 @@ def run(args) -> int:
     if trial_summaries:
         print()
         print_trials(trial_summaries)
+    _media(args, out, episodes, results)   # plots and videos; the count line below stays the last line
     print(f"results in {out}/")
     line = f"{summary['passed']} passed, {summary['failed']} failed"
     if summary["errors"]:
@@ -135,14 +172,50 @@ def run(args) -> int:
     return 0 if plain_ok and groups_ok else 1
 
 
-def _close_ids(unknown: list[str], scenarios) -> str:
+def _resume(out: Path, episodes, jobs, results: list) -> list[int]:
+    """Fill ``results`` with the complete results already in ``out``; return the indices still to run."""
+    from bench.report.results import complete_result, remove_temp_files
+
+    remove_temp_files(out)
+    todo, redo = [], 0
+    for i, (sc, job) in enumerate(zip(episodes, jobs)):
+        remove_temp_files(out / sc.slug)
+        seed = int(sc.seed if job.seed is None else job.seed)
+        controller = job.controller if isinstance(job.controller, str) else None
+        result, why = complete_result(out, sc.slug, scenario_id=sc.id, seed=seed, controller=controller,
+                                      content_hash=getattr(sc, "content_hash", None) or None)
+        if result is None:
+            todo.append(i)
+            redo += why != "no result.json"
+        else:
+            results[i] = result
+    print(f"resume: {len(jobs) - len(todo)} of {len(jobs)} results complete in {out}/, running {len(todo)}"
+          + (f" ({redo} of them incomplete or for other settings)" if redo else ""), file=sys.stderr)
+    return todo
+
+
+def _media(args, out: Path, episodes, results) -> None:
+    """Plots and videos: never a traceback, never a different exit code."""
+    try:
+        from bench.cli.render import options_from
+        from bench.render.postrun import after_run
+
+        video = getattr(args, "video", "none")
+        opts = options_from(args) if video != "none" else None
+        after_run(out, [(sc, sc.slug, r) for sc, r in zip(episodes, results)], video=video,
+                  video_dir=getattr(args, "video_dir", "videos"), plots=getattr(args, "plots", True), opts=opts)
+    except Exception as exc:  # noqa: BLE001 - the results are written; media are extras
+        print(f"plots/video: skipped: {type(exc).__name__}: {exc}")
+
+
+def _close_ids(unknown: list[str], ids: list[str]) -> str:
     import difflib
 
-    ids = [sc.id for sc in scenarios]
     close = difflib.get_close_matches(unknown[0], ids, n=3, cutoff=0.5)
+    note = " (a trial's id is the scenario id plus [trial=K], K from 0)" if any("[trial=" in i for i in ids) else ""
     if close:
-        return f"; did you mean {', '.join(close)}? (a trial id is the scenario id plus [trial=K], K from 0)"
-    return "; see `bench list scenarios`"
+        return f"; did you mean {', '.join(close)}?{note}"
+    return f"; ids here: {', '.join(ids[:5])}{', ...' if len(ids) > 5 else ''}{note}"
 
 
 def print_trials(trial_summaries: list[dict], file=None) -> None:
@@ -152,9 +225,27 @@ def print_trials(trial_summaries: list[dict], file=None) -> None:
         lo, hi = t["interval"]
         req = "all" if t["required"] is None else f"{t['required']:g}"
         failing = ", ".join(t["failing"][:4]) + (f", +{len(t['failing']) - 4} more" if len(t["failing"]) > 4 else "")
-        rows.append([t["scenario"], f"{t['passed']}/{t['trials']}", f"{t['rate']:.2f}", f"[{lo:.2f}, {hi:.2f}]",
+        count = f"{t['passed']}/{t['trials']}"
+        if t["trials"] < t.get("declared_trials", t["trials"]):
+            count += f" ({t['trials']} of {t['declared_trials']} selected)"
+        rows.append([t["scenario"], count, f"{t['rate']:.2f}", f"[{lo:.2f}, {hi:.2f}]",
                      req, t["verdict"], failing or "-"])
     print("trials (95 % Wilson interval of the pass rate; pass_rate_min is checked against its lower bound)",
           file=file)
     print_table(rows, ["scenario", "passed", "rate", "95 % interval", "required", "verdict", "failing trials"],
                 file=file)
+    for t in trial_summaries:
+        if t["trials"] < t.get("trials_needed", 0) and t["trials"] >= t.get("declared_trials", 0):
+            print(f"note: {t['scenario']}: {t['trials']} trials cannot show a pass rate of {t['required']:g} even "
+                  f"if all pass (the lower bound is at most {t['trials'] / (t['trials'] + 1.959963984540054 ** 2):.2f});"
+                  f" it needs at least {t['trials_needed']} trials", file=file)
+
+
+def _record_history(args, out: Path, results: list[dict]) -> None:
+    from bench.report.history import default_path, record_results
+
+    path = Path(args.history) if args.history else default_path(out)
+    try:
+        record_results(path, results, source="bench run", cwd=Path.cwd())
+    except Exception as exc:  # noqa: BLE001 - the run's own verdicts stand; say why history is missing
+        print(f"warning: history not recorded in {path}: {type(exc).__name__}: {exc}", file=sys.stderr)

@@ -46,6 +46,30 @@ def default_workers() -> int:
         return max(1, os.cpu_count() or 1)
 
 
+def code_fingerprint() -> dict[str, str]:
+    """Versions that decide an episode's numbers: bench (plus a hash of its source), MuJoCo, NumPy, Python.
+
+    A remote worker whose fingerprint differs from this machine's would give
+    different results for the same scenario.
+    """
+    import hashlib
+    import platform
+    from pathlib import Path
+
+    import mujoco
+    import numpy
+
+    import bench
+
+    h = hashlib.sha256()
+    root = Path(bench.__file__).resolve().parent
+    for f in sorted(root.rglob("*.py")):
+        h.update(f.relative_to(root).as_posix().encode())
+        h.update(f.read_bytes())
+    return {"bench": f"{bench.__version__} (source {h.hexdigest()[:12]})", "mujoco": mujoco.__version__,
+            "numpy": numpy.__version__, "python": platform.python_version()}
+
+
 def describe_exception(exc: BaseException) -> str:
     text = str(exc).strip().splitlines()
     return f"{type(exc).__name__}: {text[0]}" if text else type(exc).__name__

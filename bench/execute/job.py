@@ -18,6 +18,7 @@ import numpy as np
 
 import bench
 from bench.controllers import registry
+from bench.report.results import trace_digest
 from bench.robot.model import NominalRobot
 from bench.scoring.verdict import score
 from bench.sim.episode import EpisodeLimits, run_episode
@@ -107,5 +108,8 @@ def run_job(job: Job) -> Outcome:
         "events": [e.to_dict() for e in ep.events],
         "episode_status": ep.status,
         "score_from_s": sc.score_from_s,
+        # identical for the same scenario, seed and controller, on any run and in any process
+        "trace_sha256": trace_digest(ep.trace.arrays),
+        "mujoco_warnings": list(getattr(ep, "mujoco_warnings", []) or []),
     })
     return Outcome(result, ep.trace, ep.events)

@@ -1,16 +1,34 @@
 """Result files: ``result.json``, ``trace.npz`` and ``summary.json`` under the results folder.
 
-Every file is written atomically (a temporary file in the same folder, flushed,
-then renamed), so a run killed at any moment leaves only whole files.
+Every file is written atomically (a temporary file ``.<name>.<random>.tmp`` in
+the same folder, flushed and fsynced, then renamed over the target), so a run
+killed at any moment leaves only whole files, plus at most one temporary file
+per file being written, which ``bench run --resume`` removes. ``result.json`` is
+written last and marks a scenario as complete; ``complete_result`` tells whether
+a folder holds a complete, valid result (what ``--resume`` skips).
 """
 
 from __future__ import annotations
 
+import hashlib
 import json
 import math
 import os
+import re
 import tempfile
 from pathlib import Path
+
+#: Keys every result.json has (contracts.md); a file without one of them is not a complete result.
+RESULT_KEYS = ("scenario", "source", "controller", "seed", "status", "passed", "reason", "sim_time_s",
+               "wall_time_s", "realtime_factor", "controller_ms", "criteria", "metrics", "bench_version",
+               "mujoco_version")
+#: Trace arrays that depend on the wall clock, left out of the trace digest.
+UNTIMED_EXCLUDE = ("controller_ms",)
+_TEMP = re.compile(r"^\..+\.[A-Za-z0-9_]+\.tmp$")
+# mkstemp makes 0600 files; a result file gets the mode an ordinary open() would give it (0666 minus the umask).
+_UMASK = os.umask(0o022)
+os.umask(_UMASK)
+_FILE_MODE = 0o666 & ~_UMASK
 
 
 def _clean(x):
@@ -30,6 +48,7 @@ def write_atomic(path: Path, data: bytes) -> None:
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
     try:
         with os.fdopen(fd, "wb") as fh:
+            os.fchmod(fh.fileno(), _FILE_MODE)
             fh.write(data)
             fh.flush()
             os.fsync(fh.fileno())
@@ -58,6 +77,13 @@ def write_outcome(out_dir: Path, slug: str, outcome) -> Path:
     """Write one scenario's files; return the path of its result.json."""
     d = scenario_dir(out_dir, slug)
     d.mkdir(parents=True, exist_ok=True)
+    # An earlier run's result.json goes first: until the new one is in place the folder is incomplete,
+    # so a result.json never sits beside a trace.npz of another run.
+    for stale in ("result.json",) + (() if outcome.trace is not None else ("trace.npz",)):
+        try:
+            os.unlink(d / stale)
+        except FileNotFoundError:
+            pass
     if outcome.trace is not None:
         write_atomic(d / "trace.npz", outcome.trace.to_npz_bytes())
     # result.json last: its presence marks the scenario as complete.
@@ -78,3 +104,86 @@ def write_summary(out_dir: Path, entries: list[tuple[str, dict]]) -> dict:
     }
     write_json(Path(out_dir) / "summary.json", summary)
     return summary
+
+
+def trace_digest(arrays) -> str:
+    """SHA-256 of a trace's arrays (names, dtypes, shapes and bytes, in name order), without the timing ones.
+
+    Two episodes with the same scenario, seed and controller give the same digest (the bench is
+    deterministic); the npz file's own bytes differ (zip entries carry a timestamp).
+    """
+    import numpy as np  # local: keeps this module light for readers of JSON only
+
+    h = hashlib.sha256()
+    for key in sorted(arrays):
+        if key in UNTIMED_EXCLUDE:
+            continue
+        a = np.ascontiguousarray(arrays[key])
+        h.update(f"{key}|{a.dtype.str}|{a.shape}|".encode())
+        h.update(a.tobytes())
+    return h.hexdigest()
+
+
+def complete_result(out_dir: Path, slug: str, *, scenario_id: str | None = None, seed: int | None = None,
+                    controller: str | None = None, content_hash: str | None = None) -> tuple[dict | None, str]:
+    """``(result, "")`` when ``<out_dir>/<slug>`` holds a complete, valid result, else ``(None, why)``.
+
+    Complete and valid: ``result.json`` parses, is a mapping with every contract key, belongs to this
+    scenario id, seed, controller and scenario content (when given), and its ``trace.npz`` loads with
+    the contract keys and, when the result records one, the same trace digest. An ``error`` or
+    ``timeout`` result may have no trace (the world could not be built, the worker died).
+    """
+    import numpy as np
+
+    from bench.sim.trace import CONTRACT_KEYS
+
+    d = Path(out_dir) / slug
+    try:
+        result = json.loads((d / "result.json").read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        return None, "no result.json"
+    except (OSError, UnicodeDecodeError, ValueError) as exc:
+        return None, f"result.json unreadable: {exc}"
+    if not isinstance(result, dict):
+        return None, "result.json is not a mapping"
+    missing = [k for k in RESULT_KEYS if k not in result]
+    if missing:
+        return None, f"result.json lacks {', '.join(missing)}"
+    for key, want in (("scenario", scenario_id), ("seed", seed), ("controller", controller),
+                      ("content_hash", content_hash)):
+        if want is not None and result.get(key) != want:
+            return None, f"result.json is for another {key} ({result.get(key)!r}, this run {want!r})"
+    trace = d / "trace.npz"
+    if not trace.exists():
+        if result["status"] in ("error", "timeout") and not result.get("trace_sha256"):
+            return result, ""
+        return None, "no trace.npz"
+    try:
+        with np.load(trace, allow_pickle=False) as z:
+            names = set(z.files)
+            lacking = [k for k in CONTRACT_KEYS if k not in names]
+            if lacking:
+                return None, f"trace.npz lacks {', '.join(lacking)}"
+            want_digest = result.get("trace_sha256")
+            if want_digest and trace_digest({k: z[k] for k in z.files if not k.startswith("meta_")}) != want_digest:
+                return None, "trace.npz does not match result.json (digest differs)"
+    except Exception as exc:  # noqa: BLE001 - a torn or foreign file of any kind is just "not complete"
+        return None, f"trace.npz unreadable: {type(exc).__name__}: {exc}"
+    return result, ""
+
+
+def remove_temp_files(folder: Path) -> list[Path]:
+    """Delete the temporary files an interrupted atomic write left in ``folder`` (not below it)."""
+    removed = []
+    try:
+        entries = list(Path(folder).iterdir())
+    except OSError:
+        return removed
+    for p in entries:
+        if _TEMP.match(p.name) and p.is_file():
+            try:
+                p.unlink()
+                removed.append(p)
+            except OSError:
+                pass
+    return removed

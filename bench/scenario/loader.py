@@ -13,12 +13,15 @@ from collections.abc import Iterable
 from pathlib import Path
 
 from bench.errors import ScenarioError, ScenarioErrors
-from bench.scenario.compose import expand_matrix, load_merged
+from bench.scenario.compose import _inside, allowed_roots, expand_matrix, load_merged
 from bench.scenario.schema import Scenario
 from bench.scenario.trials import check_randomize
 from bench.scenario.validate import validate_document
+from bench.scenario.yamlload import load_yaml, printable
 
 SUFFIXES = (".yaml", ".yml")
+#: At most this many problems are reported for one run (a hostile file can have thousands).
+MAX_REPORTED_ERRORS = 200
 
 
 def _skipped(part: str) -> bool:
@@ -38,19 +41,76 @@ def find_scenario_files(path: str | Path) -> list[Path]:
     return sorted(found, key=lambda f: f.as_posix())
 
 
+_OUTSIDE_HINT = ("a file a scenario names may be in the scenario's own folder tree, the bundled models/ and "
+                 "scenarios/, or a folder passed with --root")
+
+
+def named_file_problems(scenario: Scenario, roots: list[Path]) -> list[ScenarioError]:
+    """Files the scenario names (a robot manifest, and the MJCF that manifest names) must stay inside `roots`.
+
+    The manifest is YAML the scenario points at, so it is read here with the same safe loader and
+    limits as a scenario (size, nesting, aliases) before anything else parses it.
+    """
+    manifest = scenario.robot.manifest
+    if manifest is None:
+        return []
+    resolved = Path(manifest).resolve()
+    if not _inside(resolved, roots):
+        return [scenario.error("robot.manifest", f"robot manifest {str(manifest)!r} is outside the allowed "
+                               "folders", _OUTSIDE_HINT)]
+    try:
+        doc = load_yaml(manifest)
+    except ScenarioErrors as e:
+        return list(e)
+    mjcf = doc.data.get("mjcf")
+    if isinstance(mjcf, str) and mjcf and not _inside((resolved.parent / mjcf).resolve(), roots):
+        loc = doc.locs.value(("mjcf",))
+        return [ScenarioError(loc.file, loc.line, loc.col, "mjcf", f"MJCF {mjcf!r} is outside the allowed folders",
+                              _OUTSIDE_HINT)]
+    return []
+
+
+def _randomized_robot_problems(scenario: Scenario, roots: list[Path]) -> list[ScenarioError]:
+    """`randomize: {robot...: {choice: [...]}}`: every choice's files must stay inside `roots` too."""
+    from bench.scenario.compose import derive
+    from bench.scenario.schema import Choice
+
+    problems: list[ScenarioError] = []
+    for dotted, dist in scenario.randomize.items():
+        if (dotted == "robot" or dotted.startswith("robot.")) and isinstance(dist, Choice):
+            for value in dist.values:
+                try:
+                    problems.extend(named_file_problems(derive(scenario, {dotted: value}, ""), roots))
+                except ScenarioErrors:
+                    continue  # an invalid choice is reported by check_randomize
+    return problems
+
+
 def load_file(path: str | Path, roots: Iterable[str | Path] = ()) -> list[Scenario]:
     """Every scenario one file defines (several when it has a matrix). Raises `ScenarioErrors`."""
     source = str(path)
+    roots = list(roots)
     doc = load_merged(path, roots)
+    allowed = allowed_roots(path, roots)
     out: list[Scenario] = []
     errors: list[ScenarioError] = []
+    checked: dict[Path, list[ScenarioError]] = {}
     for vdoc, variant in expand_matrix(doc):
         try:
             scenario = validate_document(vdoc, source=source, variant=variant)
         except ScenarioErrors as e:
             errors.extend(e)
             continue
+        key = scenario.robot.manifest
+        if key is not None:
+            if key not in checked:
+                checked[key] = named_file_problems(scenario, allowed)
+            if checked[key]:
+                errors.extend(checked[key])
+                continue
         problems = check_randomize(scenario) if scenario.randomize else []
+        if not problems and scenario.randomize:
+            problems = _randomized_robot_problems(scenario, allowed)
         if problems:
             errors.extend(problems)
             continue
@@ -60,6 +120,15 @@ def load_file(path: str | Path, roots: Iterable[str | Path] = ()) -> list[Scenar
         errors.sort(key=lambda e: (e.path != source, e.path, e.line, e.col))
         raise ScenarioErrors(errors)
     return out
+
+
+def _one_line(e: ScenarioError) -> ScenarioError:
+    """The error with any control character or line break in its texts escaped: one problem, one line."""
+    texts = (e.path, e.field, e.message, e.hint or "")
+    if all(t.isprintable() for t in texts):
+        return e
+    return ScenarioError(printable(e.path), e.line, e.col, printable(e.field), printable(e.message),
+                         printable(e.hint) if e.hint else None)
 
 
 def load_scenarios(paths: Iterable[str | Path], roots: Iterable[str | Path] = ()) -> list[Scenario]:
@@ -101,6 +170,12 @@ def load_scenarios(paths: Iterable[str | Path], roots: Iterable[str | Path] = ()
             continue
         seen[s.id] = s
         seen_slug[s.slug] = s
+    errors = [_one_line(e) for e in ScenarioErrors(errors).errors]   # without repeats, each on one line
+    if len(errors) > MAX_REPORTED_ERRORS:
+        last = errors[MAX_REPORTED_ERRORS - 1]
+        errors = errors[:MAX_REPORTED_ERRORS] + [ScenarioError(
+            last.path, last.line, last.col, "", f"... and {len(errors) - MAX_REPORTED_ERRORS} more problems "
+            f"(the first {MAX_REPORTED_ERRORS} are shown)")]
     if errors:
         raise ScenarioErrors(errors)
     return scenarios

@@ -119,9 +119,11 @@ _START = dict(doc="x where the piece starts", unit="m", ge=-1000.0, le=1000.0)
 _LENGTH = dict(doc="horizontal length along x", unit="m", gt=0.0, le=1000.0)
 
 STAIR_PRESETS: dict[str, tuple[float, float]] = {
-    # (rise, run) in m: the building-code limits for steepest allowed stairs
-    "irc-residential": (0.196, 0.254),  # 7 3/4 in rise, 10 in tread
-    "ibc-commercial": (0.178, 0.279),  # 7 in rise, 11 in tread
+    # (rise, run) in m: the steepest stairs a building code allows, rounded to the mm on the allowed side
+    # (from memory: IRC R311.7.5.1 riser at most 7 3/4 in = 0.19685 m, R311.7.5.2 tread at least 10 in = 0.254 m;
+    #  IBC 1011.5.2 riser 4 to 7 in = 0.1016 to 0.1778 m, tread at least 11 in = 0.2794 m)
+    "irc-residential": (0.196, 0.254),
+    "ibc-commercial": (0.177, 0.280),
 }
 
 
@@ -488,11 +490,11 @@ class Limp:
 
 @_frozen
 class Latency:
-    """Observations reach the controller `delay` late from `at` on."""
+    """Torques the controller returns reach the motors `delay` late from `at` on (whole control ticks)."""
 
     kind: ClassVar[str] = "latency"
     at: float = spec(**_AT)
-    delay: float = spec(doc="added observation delay", unit="s", ge=0.0, le=1.0)
+    delay: float = spec(doc="added command delay, rounded to whole control ticks", unit="s", ge=0.0, le=1.0)
 
 
 @_frozen
@@ -651,7 +653,8 @@ def _criteria_json() -> dict:
 
 def _parse_robot(v: Any, raw: Any, path: tuple) -> Any:
     if isinstance(raw, str):
-        if not raw or not all(c.isalnum() or c in "._-" for c in raw) or raw.startswith("."):
+        if (not raw or not all(c.isalnum() or c in "._-" for c in raw) or raw.startswith(".")
+                or raw.lower().endswith((".yaml", ".yml"))):   # a file name would be looked up as a path
             return v.fail(path, f"robot name {raw!r} is not a bundled model name",
                           "use a name such as quad12, or {manifest: path/to/manifest.yaml}")
         return RobotRef(name=raw, manifest=None)

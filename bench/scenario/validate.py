@@ -179,9 +179,14 @@ class Validator:
             hint = f"write {int(raw)}" if math.isfinite(raw) and raw.is_integer() else None
             return self.fail(path, f"expected an integer, got {describe(raw)}", hint)
         if not integer:
-            if not math.isfinite(raw):
+            try:
+                as_float = float(raw)
+            except OverflowError:  # an integer with hundreds of digits
+                return self.fail(path, f"must be a finite number, got an integer of about "
+                                 f"{int(raw.bit_length() * 0.30103) + 1} digits")
+            if not math.isfinite(as_float):
                 return self.fail(path, f"must be a finite number, got {raw}")
-            raw = float(raw)
+            raw = as_float
         unit = _u(meta.get("unit"))
         for key, ok, words in (("ge", lambda v, b: v >= b, "at least"), ("gt", lambda v, b: v > b, "more than"),
                                ("le", lambda v, b: v <= b, "at most"), ("lt", lambda v, b: v < b, "less than")):

@@ -9,6 +9,22 @@ contact forces all belong to the same instant; the other substeps are plain
 a controller fault or timeout; each becomes a status with a reason, never an
 exception that unwinds the run.
 
+Hung controllers: on the main thread of a process (``bench run`` with one
+worker, and every worker process of ``--workers N``) a watchdog timer
+(``SIGALRM`` every ``WATCH_FRACTION`` of the smallest limit) interrupts a
+controller call that has run past the per-tick limit, or past the episode's
+wall-clock deadline, by raising a private exception inside it; the episode ends
+as ``timeout`` naming the tick and time. It costs one attribute write per call
+(the timer is set once per episode, not per tick). Elsewhere (another thread,
+such as a Dask worker's, or when the process already uses ``SIGALRM``) each call
+is measured after it returns instead. Code stuck inside a C call that never
+returns cannot be interrupted in-process (Python runs signal handlers between
+bytecodes); a controller program behind ``exec:`` has its own timeout.
+
+MuJoCo's warnings are captured while an episode runs (MuJoCo's own message
+text, instead of its default of printing and writing ``MUJOCO_LOG.TXT`` into
+the working folder); a fatal one ends the episode as ``error`` with that text.
+
 The controller gets only an :class:`~bench.controllers.base.Observation`: the
 world model, the scenario, payloads and disturbances stay out of its reach.
 """
@@ -16,6 +32,9 @@ world model, the scenario, payloads and disturbances stay out of its reach.
 from __future__ import annotations
 
 import math
+import signal
+import sys
+import threading
 import time
 from dataclasses import dataclass, field
 
@@ -47,11 +66,158 @@ _WARN_TEXT = {
 }
 
 
+#: The watchdog looks at a running controller call this often, as a share of the smallest limit, so a
+#: stuck call is interrupted at most 10 % late; clamped to [WATCH_PERIOD_MIN_S, WATCH_PERIOD_MAX_S].
+WATCH_FRACTION = 0.1
+WATCH_PERIOD_MIN_S = 0.005
+WATCH_PERIOD_MAX_S = 0.25
+#: At most this many MuJoCo warning messages are kept per episode.
+MAX_WARNING_MESSAGES = 16
+
+
+class _ControllerHung(BaseException):
+    """Raised inside a controller call by the watchdog; caught by the runner, never seen outside.
+
+    A ``BaseException`` so that a controller's own ``except Exception`` does not swallow it.
+    """
+
+    def __init__(self, which: str, elapsed_s: float):
+        super().__init__(which, elapsed_s)
+        self.which = which            # "tick" or "episode"
+        self.elapsed_s = elapsed_s    # how long the interrupted call had been running
+
+
+class _Watchdog:
+    """Interrupts a controller call stuck in Python code (see the module docstring).
+
+    The runner sets ``call_start`` (a ``perf_counter`` value) before each call and
+    0.0 right after it, and ``call_limit_s`` to the limit of that kind of call.
+    ``start()`` returns False (and the watchdog does nothing) where it cannot
+    work: not the main thread, no ``setitimer``, or ``SIGALRM``/the real-time
+    timer already in use by someone else (it never takes them over).
+    """
+
+    def __init__(self, tick_limit_s: float | None, deadline: float):
+        self.tick_limit_s = math.inf if tick_limit_s is None or tick_limit_s <= 0 else float(tick_limit_s)
+        self.deadline = deadline
+        self.call_start = 0.0
+        self.call_limit_s = self.tick_limit_s
+        self.active = False
+        self.period_s = 0.0
+        self._previous = None
+
+    def start(self) -> bool:
+        limit = min(self.tick_limit_s, self.deadline - time.perf_counter())
+        if not math.isfinite(limit) or not hasattr(signal, "setitimer"):
+            return False
+        if threading.current_thread() is not threading.main_thread():
+            return False
+        try:
+            if signal.getsignal(signal.SIGALRM) not in (signal.SIG_DFL, signal.SIG_IGN, None):
+                return False
+            if signal.getitimer(signal.ITIMER_REAL)[0] > 0:
+                return False
+            self.period_s = min(max(limit * WATCH_FRACTION, WATCH_PERIOD_MIN_S), WATCH_PERIOD_MAX_S)
+            self._previous = signal.signal(signal.SIGALRM, self._on_alarm)
+            signal.setitimer(signal.ITIMER_REAL, self.period_s, self.period_s)
+        except (ValueError, OSError):  # not the main interpreter, or the platform refuses
+            return False
+        self.active = True
+        return True
+
+    def stop(self) -> None:
+        if not self.active:
+            return
+        self.active = False
+        self.call_start = 0.0
+        signal.setitimer(signal.ITIMER_REAL, 0.0, 0.0)
+        signal.signal(signal.SIGALRM, self._previous if self._previous is not None else signal.SIG_DFL)
+
+    def _on_alarm(self, signum, frame) -> None:
+        start = self.call_start
+        if not start:
+            return  # between calls: physics and bookkeeping are never interrupted
+        now = time.perf_counter()
+        # Raised again at every alarm while the call goes on, so a controller that swallows it
+        # (a bare ``except:``) is interrupted again. The runner clears call_start first thing after
+        # catching it, well within one period (>= 5 ms).
+        if now - start > self.call_limit_s:
+            raise _ControllerHung("tick", now - start)
+        if now > self.deadline:
+            raise _ControllerHung("episode", now - start)
+
+
+_warn_lock = threading.Lock()
+_warn_users = 0
+_warn_previous = None
+_warn_local = threading.local()
+
+
+def _on_mujoco_warning(message) -> None:
+    box = getattr(_warn_local, "box", None)
+    if box is not None:
+        if len(box) < MAX_WARNING_MESSAGES:
+            box.append(str(message))
+        return
+    previous = _warn_previous
+    if previous is not None:
+        previous(message)
+    else:  # a warning on a thread with no episode while one runs elsewhere: print, but write no log file
+        print(f"MuJoCo warning: {message}", file=sys.stderr)
+
+
+class _CaptureMujocoWarnings:
+    """Collect MuJoCo's warning messages raised on this thread into ``box`` (a list) while entered."""
+
+    def __init__(self, box: list[str]):
+        self.box = box
+
+    def __enter__(self) -> list[str]:
+        global _warn_users, _warn_previous
+        _warn_local.box = self.box
+        if hasattr(mujoco, "set_mju_user_warning"):
+            with _warn_lock:
+                if _warn_users == 0:
+                    _warn_previous = mujoco.get_mju_user_warning()
+                    mujoco.set_mju_user_warning(_on_mujoco_warning)
+                _warn_users += 1
+        return self.box
+
+    def __exit__(self, *exc) -> None:
+        global _warn_users, _warn_previous
+        _warn_local.box = None
+        if hasattr(mujoco, "set_mju_user_warning"):
+            with _warn_lock:
+                _warn_users -= 1
+                if _warn_users == 0:
+                    mujoco.set_mju_user_warning(_warn_previous)
+                    _warn_previous = None
+
+
+def _one_line(exc: BaseException) -> str:
+    return " ".join(str(exc).split()) or type(exc).__name__
+
+
+def _mujoco_message(warning, info: int, captured: list[str]) -> str:
+    """MuJoCo's own text for ``warning``: the captured message (it carries MuJoCo's time) or mju_warningText."""
+    own = mujoco.mju_warningText(int(warning), int(info)) if hasattr(mujoco, "mju_warningText") else ""
+    head = own.split(" at ")[0][:30] if own else ""
+    for msg in captured:
+        if head and msg.startswith(head):
+            return msg
+    return own or _WARN_TEXT.get(warning, str(warning))
+
+
 @dataclass
 class EpisodeLimits:
-    """Wall-clock limits for the controller; exceeding one ends the episode as ``timeout``."""
+    """Wall-clock limits; exceeding one ends the episode as ``timeout``.
 
-    tick_timeout_s: float = 2.0
+    ``tick_timeout_s``: one ``controller.step`` call (``None``: no limit). ``episode_timeout_s``: the
+    whole episode, ``reset`` included (``None``: no limit). Both interrupt a call stuck in Python code
+    where the watchdog can run (see the module docstring), else they are checked after each call.
+    """
+
+    tick_timeout_s: float | None = 2.0
     episode_timeout_s: float | None = 600.0
 
 
@@ -66,6 +232,8 @@ class EpisodeResult:
     wall_time_s: float
     events: list[Event] = field(default_factory=list)
     controller_stats: dict = field(default_factory=dict)
+    mujoco_warnings: list[str] = field(default_factory=list)   # MuJoCo's messages, fatal or not
+    interruptible: bool = False                                # whether the watchdog could run
 
 
 def _quat_to_mat(q: np.ndarray, out: np.ndarray) -> np.ndarray:
@@ -114,6 +282,31 @@ def run_episode(world, scenario, controller, robot, *, seed: int | None = None,
                 limits: EpisodeLimits | None = None) -> EpisodeResult:
     """Run ``scenario`` in ``world`` with ``controller`` (already constructed) and return the result."""
     limits = limits or EpisodeLimits()
+    t_start = time.perf_counter()
+    deadline = math.inf if limits.episode_timeout_s is None else t_start + float(limits.episode_timeout_s)
+    watchdog = _Watchdog(limits.tick_timeout_s, deadline)
+    captured: list[str] = []
+    with _CaptureMujocoWarnings(captured):
+        interruptible = watchdog.start()
+        try:
+            ep = _run_episode(world, scenario, controller, robot, seed, limits, watchdog, captured)
+        finally:
+            watchdog.stop()
+    ep.mujoco_warnings = captured
+    ep.interruptible = interruptible
+    return ep
+
+
+def _timeout_reason(hung: _ControllerHung, limits: EpisodeLimits, where: str) -> str:
+    if hung.which == "tick":
+        return (f"controller did not return within the per-tick limit of {limits.tick_timeout_s:g} s {where}; "
+                f"interrupted after {hung.elapsed_s:.2f} s")
+    return (f"episode exceeded the wall-clock limit of {limits.episode_timeout_s:g} s {where}; "
+            f"controller interrupted after {hung.elapsed_s:.2f} s in the call")
+
+
+def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits, watchdog: _Watchdog,
+                 captured: list[str]) -> EpisodeResult:
     seed = int(scenario.seed if seed is None else seed)
     m = world.model
     d = mujoco.MjData(m)
@@ -182,17 +375,37 @@ def run_episode(world, scenario, controller, robot, *, seed: int | None = None,
     d.qpos[:] = world.initial_qpos
     for p, mass in zip(world.payloads, payload_mass):
         _set_payload_mass(m, p, mass)
-    mujoco.mj_forward(m, d)
+    try:
+        mujoco.mj_forward(m, d)
+    except mujoco.FatalError as exc:
+        return EpisodeResult(trace.__class__({k: v[:0] for k, v in A.items()}), "error",
+                             f"MuJoCo error at t=0.000 s, before the first tick: {_one_line(exc)}", 0.0, 0.0, events)
     obs = Observation.zeros(J, F)
     command = np.zeros(3)
     status, reason = "completed", None
     ctrl_ms = A["controller_ms"]
 
+    # reset() may take long (building a solver): only the episode deadline applies to it.
+    watchdog.call_limit_s = math.inf
+    c0 = watchdog.call_start = time.perf_counter()
     try:
         controller.reset(robot, ctrl_dt)
+        watchdog.call_start = 0.0
+    except _ControllerHung as hung:
+        watchdog.call_start = 0.0
+        return EpisodeResult(trace.__class__({k: v[:0] for k, v in A.items()}), "timeout",
+                             _timeout_reason(hung, limits, "in reset()"), 0.0, time.perf_counter() - c0, events)
     except Exception as exc:  # noqa: BLE001 - a fault of the controller, reported as such
+        watchdog.call_start = 0.0
         return EpisodeResult(trace.__class__({k: v[:0] for k, v in A.items()}), "error",
                              f"controller raised {type(exc).__name__} in reset(): {exc}", 0.0, 0.0, events)
+    if time.perf_counter() > watchdog.deadline:
+        return EpisodeResult(trace.__class__({k: v[:0] for k, v in A.items()}), "timeout",
+                             f"episode exceeded the wall-clock limit of {limits.episode_timeout_s:g} s in reset() "
+                             f"(reset took {time.perf_counter() - c0:.2f} s)", 0.0, time.perf_counter() - c0, events)
+    watchdog.call_limit_s = watchdog.tick_limit_s
+    tick_limit_s = watchdog.tick_limit_s
+    deadline = watchdog.deadline
 
     def apply_forces(step: int) -> None:
         d.xfrc_applied[trunk, :] = 0.0
@@ -213,138 +426,157 @@ def run_episode(world, scenario, controller, robot, *, seed: int | None = None,
 
     wall0 = time.perf_counter()
     step = 0
+    physics_fault = False  # MuJoCo may have reset d (and d.time) on the way: time is counted in steps
     k = 0
-    for k in range(n_ticks):
-        t = k * ctrl_dt
-        # Timed changes to the world the controller is not told about.
-        for ms in mass_scheds:
-            mass = ms.mass_at(t)
-            if mass != payload_mass[ms.payload_index]:
-                p = world.payloads[ms.payload_index]
-                _set_payload_mass(m, p, mass)
-                visible = mass > 0
-                m.geom_contype[p.geom_id] = payload_geom_contype[ms.payload_index] if visible else 0
-                m.geom_rgba[p.geom_id, 3] = base_rgba_alpha[ms.payload_index] if visible else 0.0
-                payload_mass[ms.payload_index] = mass
-        for at, idx, factor in derates:
-            if t >= at:
-                limit_now[idx] = nominal_limits[idx] * factor
-        for at, j, eq in locks:
-            if t >= at and not d.eq_active[eq]:
-                m.eq_data[eq, 0] = d.qpos[jq[j]]
-                d.eq_active[eq] = 1
+    try:
+        for k in range(n_ticks):
+            t = k * ctrl_dt
+            # Timed changes to the world the controller is not told about.
+            for ms in mass_scheds:
+                mass = ms.mass_at(t)
+                if mass != payload_mass[ms.payload_index]:
+                    p = world.payloads[ms.payload_index]
+                    _set_payload_mass(m, p, mass)
+                    visible = mass > 0
+                    m.geom_contype[p.geom_id] = payload_geom_contype[ms.payload_index] if visible else 0
+                    m.geom_rgba[p.geom_id, 3] = base_rgba_alpha[ms.payload_index] if visible else 0.0
+                    payload_mass[ms.payload_index] = mass
+            for at, idx, factor in derates:
+                if t >= at:
+                    limit_now[idx] = nominal_limits[idx] * factor
+            for at, j, eq in locks:
+                if t >= at and not d.eq_active[eq]:
+                    m.eq_data[eq, 0] = d.qpos[jq[j]]
+                    d.eq_active[eq] = 1
 
-        apply_forces(step)
-        mujoco.mj_step1(m, d)
-
-        # Observation: sensors, joints, contacts of this instant.
-        obs.t = t
-        obs.imu_quat[:] = d.sensordata[iq:iq + 4]
-        obs.imu_gyro[:] = d.sensordata[ig:ig + 3]
-        obs.imu_accel[:] = d.sensordata[ia:ia + 3]
-        obs.joint_pos[:] = d.qpos[jq]
-        obs.joint_vel[:] = d.qvel[jv]
-        obs.privileged.base_pos[:] = d.qpos[qa:qa + 3]
-        obs.privileged.base_linvel[:] = d.qvel[va:va + 3]
-        obs.foot_contact[:] = False
-        fell_contact = False
-        foot_con = None
-        if d.ncon:
-            # Contacts with the ground, classified with array lookups (no per-contact Python work).
-            geoms = d.contact.geom
-            g1, g2 = geoms[:, 0], geoms[:, 1]
-            t1 = is_terrain[g1]
-            other = np.where(t1, g2, g1)
-            ground_con = t1 | is_terrain[g2]
-            foot = foot_of_geom[other]
-            foot_con = np.flatnonzero(ground_con & (foot >= 0))
-            touching = foot_con[d.contact.dist[foot_con] < CONTACT_DIST_M]
-            obs.foot_contact[foot[touching]] = True
-            fell_contact = bool(np.any(ground_con & is_fall[other] & (d.contact.dist < 0)))
-        _record_state(A, k, t, world, d, obs, payload_mass, carried, feet_sites)
-        if sensor_faults.active:
-            sensor_faults.apply(obs, t)
-        command[:] = cmd_vals[cmd_index[k]]
-
-        # The controller.
-        c0 = time.perf_counter()
-        try:
-            tau = controller.step(obs, command)
-        except Exception as exc:  # noqa: BLE001
-            status = "timeout" if isinstance(exc, TimeoutError) else "error"   # e.g. an external program's wait
-            reason = f"controller raised {type(exc).__name__} at tick {k} (t={t:.3f} s): {exc}"
-            break
-        c1 = time.perf_counter()
-        ctrl_ms[k] = (c1 - c0) * 1e3
-        if c1 - c0 > limits.tick_timeout_s:
-            status, reason = "timeout", (f"controller took {c1 - c0:.2f} s at tick {k} (t={t:.3f} s), "
-                                         f"over the per-tick limit of {limits.tick_timeout_s:g} s")
-            break
-        if limits.episode_timeout_s is not None and c1 - wall0 > limits.episode_timeout_s:
-            status, reason = "timeout", (f"episode exceeded the wall-clock limit of {limits.episode_timeout_s:g} s "
-                                         f"at tick {k} (t={t:.3f} s)")
-            break
-        try:
-            tau = np.asarray(tau, dtype=float)
-        except (TypeError, ValueError) as exc:
-            status, reason = "error", f"controller returned a non-numeric value at tick {k} (t={t:.3f} s): {exc}"
-            break
-        if tau.shape != (J,):
-            status, reason = "error", (f"controller returned torques of shape {tau.shape} at tick {k} "
-                                       f"(t={t:.3f} s); expected ({J},)")
-            break
-        if not math.isfinite(float(tau.sum())):  # any NaN or infinity makes the sum non-finite
-            status, reason = "error", f"controller returned non-finite torques at tick {k} (t={t:.3f} s)"
-            break
-
-        # Latency, limp joints and limits, then hold until the next tick.
-        delay = 0
-        for at, dk in latencies:
-            if t >= at:
-                delay = dk
-        tau_ring[k % (max_delay + 1)] = tau
-        applied = tau_ring[(k - delay) % (max_delay + 1)] if k >= delay else np.zeros(J)
-        np.minimum(applied, limit_now, out=applied_buf)
-        np.maximum(applied_buf, -limit_now, out=applied_buf)
-        applied = applied_buf
-        for at, j in limps:
-            if t >= at:
-                applied[j] = 0.0
-        d.ctrl[act] = applied
-
-        mujoco.mj_step2(m, d)
-        step += 1
-
-        # Record the row of this instant (contact forces come from this step's solve).
-        _record_effort(A, k, world, d, command, applied, limit_now, ext_now, foot_con, foot_of_geom, is_terrain,
-                       cf, frame)
-
-        for _ in range(substeps - 1):
             apply_forces(step)
-            mujoco.mj_step(m, d)
+            mujoco.mj_step1(m, d)
+
+            # Observation: sensors, joints, contacts of this instant.
+            obs.t = t
+            obs.imu_quat[:] = d.sensordata[iq:iq + 4]
+            obs.imu_gyro[:] = d.sensordata[ig:ig + 3]
+            obs.imu_accel[:] = d.sensordata[ia:ia + 3]
+            obs.joint_pos[:] = d.qpos[jq]
+            obs.joint_vel[:] = d.qvel[jv]
+            obs.privileged.base_pos[:] = d.qpos[qa:qa + 3]
+            obs.privileged.base_linvel[:] = d.qvel[va:va + 3]
+            obs.foot_contact[:] = False
+            fell_contact = False
+            foot_con = None
+            if d.ncon:
+                # Contacts with the ground, classified with array lookups (no per-contact Python work).
+                geoms = d.contact.geom
+                g1, g2 = geoms[:, 0], geoms[:, 1]
+                t1 = is_terrain[g1]
+                other = np.where(t1, g2, g1)
+                ground_con = t1 | is_terrain[g2]
+                foot = foot_of_geom[other]
+                foot_con = np.flatnonzero(ground_con & (foot >= 0))
+                touching = foot_con[d.contact.dist[foot_con] < CONTACT_DIST_M]
+                obs.foot_contact[foot[touching]] = True
+                fell_contact = bool(np.any(ground_con & is_fall[other] & (d.contact.dist < 0)))
+            _record_state(A, k, t, world, d, obs, payload_mass, carried, feet_sites)
+            if sensor_faults.active:
+                sensor_faults.apply(obs, t)
+            command[:] = cmd_vals[cmd_index[k]]
+
+            # The controller.
+            c0 = watchdog.call_start = time.perf_counter()
+            try:
+                tau = controller.step(obs, command)
+                watchdog.call_start = 0.0
+            except _ControllerHung as hung:
+                watchdog.call_start = 0.0
+                ctrl_ms[k] = (time.perf_counter() - c0) * 1e3
+                status, reason = "timeout", _timeout_reason(hung, limits, f"at tick {k} (t={t:.3f} s)")
+                break
+            except Exception as exc:  # noqa: BLE001
+                watchdog.call_start = 0.0
+                status = "timeout" if isinstance(exc, TimeoutError) else "error"   # e.g. an external program's wait
+                reason = f"controller raised {type(exc).__name__} at tick {k} (t={t:.3f} s): {exc}"
+                break
+            c1 = time.perf_counter()
+            ctrl_ms[k] = (c1 - c0) * 1e3
+            if c1 - c0 > tick_limit_s:
+                status, reason = "timeout", (f"controller took {c1 - c0:.2f} s at tick {k} (t={t:.3f} s), "
+                                             f"over the per-tick limit of {tick_limit_s:g} s")
+                break
+            if c1 > deadline:
+                status, reason = "timeout", (f"episode exceeded the wall-clock limit of {limits.episode_timeout_s:g} s "
+                                             f"at tick {k} (t={t:.3f} s)")
+                break
+            try:
+                tau = np.asarray(tau, dtype=float)
+            except (TypeError, ValueError) as exc:
+                status, reason = "error", f"controller returned a non-numeric value at tick {k} (t={t:.3f} s): {exc}"
+                break
+            if tau.shape != (J,):
+                what = "None" if tau.shape == () and math.isnan(float(tau)) else f"torques of shape {tau.shape}"
+                status, reason = "error", (f"controller returned {what} at tick {k} (t={t:.3f} s); "
+                                           f"expected {J} torques, shape ({J},)")
+                break
+            if not math.isfinite(float(tau.sum())):  # any NaN or infinity makes the sum non-finite
+                status, reason = "error", f"controller returned non-finite torques at tick {k} (t={t:.3f} s)"
+                break
+
+            # Latency, limp joints and limits, then hold until the next tick.
+            delay = 0
+            for at, dk in latencies:
+                if t >= at:
+                    delay = dk
+            tau_ring[k % (max_delay + 1)] = tau
+            applied = tau_ring[(k - delay) % (max_delay + 1)] if k >= delay else np.zeros(J)
+            np.minimum(applied, limit_now, out=applied_buf)
+            np.maximum(applied_buf, -limit_now, out=applied_buf)
+            applied = applied_buf
+            for at, j in limps:
+                if t >= at:
+                    applied[j] = 0.0
+            d.ctrl[act] = applied
+
+            mujoco.mj_step2(m, d)
             step += 1
 
-        # End conditions.
-        if d.warning.number.any() and d.warning.number[fatal_idx].any():
-            w = next(w for w in FATAL_WARNINGS if d.warning[w].number > 0)
-            status, reason = "error", (f"MuJoCo warning at t={d.time:.3f} s: {_WARN_TEXT[w]} "
-                                       f"(mjtWarning.{mujoco.mjtWarning(w).name}, info {d.warning[w].lastinfo})")
-            k += 1
-            break
-        if not math.isfinite(d.qpos.sum() + d.qvel.sum()):
-            status, reason = "error", f"non-finite state at t={d.time:.3f} s"
-            k += 1
-            break
-        z = d.qpos[qa + 2]
-        ground = ground_table[min(max(int((d.qpos[qa] - table_x0) * TABLE_PER_M), 0), table_last)]
-        if fell_contact or z - ground < fall_z:
-            why = "trunk or leg touched the ground" if fell_contact else (
-                f"trunk {z - ground:.3f} m above the ground, under the fall threshold {fall_z:.3f} m")
-            status, reason = "fell", f"fell at t={t:.3f} s: {why}"
-            k += 1
-            break
-    else:
-        k = n_ticks
+            # Record the row of this instant (contact forces come from this step's solve).
+            _record_effort(A, k, world, d, command, applied, limit_now, ext_now, foot_con, foot_of_geom, is_terrain,
+                           cf, frame)
+
+            for _ in range(substeps - 1):
+                apply_forces(step)
+                mujoco.mj_step(m, d)
+                step += 1
+
+            # End conditions.
+            if d.warning.number.any() and d.warning.number[fatal_idx].any():
+                w = next(w for w in FATAL_WARNINGS if d.warning[w].number > 0)
+                # After a bad acceleration MuJoCo resets the data (d.time too): the time is counted here.
+                sim_t = step * dt
+                status, reason = "error", (f"MuJoCo warning at tick {k} (t={t:.3f}-{sim_t:.3f} s): "
+                                           f"{_mujoco_message(w, d.warning[w].lastinfo, captured)} "
+                                           f"[{_WARN_TEXT[w]}; mjtWarning.{mujoco.mjtWarning(w).name}]")
+                physics_fault = True
+                k += 1
+                break
+            if not math.isfinite(d.qpos.sum() + d.qvel.sum()):
+                status, reason = "error", (f"non-finite state (NaN or infinity in qpos/qvel) at tick {k} "
+                                           f"(t={t:.3f}-{step * dt:.3f} s)")
+                physics_fault = True
+                k += 1
+                break
+            z = d.qpos[qa + 2]
+            ground = ground_table[min(max(int((d.qpos[qa] - table_x0) * TABLE_PER_M), 0), table_last)]
+            if fell_contact or z - ground < fall_z:
+                why = "trunk or leg touched the ground" if fell_contact else (
+                    f"trunk {z - ground:.3f} m above the ground, under the fall threshold {fall_z:.3f} m")
+                status, reason = "fell", f"fell at t={t:.3f} s: {why}"
+                k += 1
+                break
+        else:
+            k = n_ticks
+    except mujoco.FatalError as exc:  # mju_error inside a step (e.g. the arena is out of memory)
+        status, reason = "error", f"MuJoCo error at tick {k} (t={k * ctrl_dt:.3f} s): {_one_line(exc)}"
+        physics_fault = True
     wall = time.perf_counter() - wall0
 
     n = k
@@ -366,13 +598,22 @@ def run_episode(world, scenario, controller, robot, *, seed: int | None = None,
         "status": status,
         "fall_time": float(n * ctrl_dt) if status == "fell" else -1.0,
     })
-    return EpisodeResult(trace, status, reason, sim_time_s=float(d.time), wall_time_s=wall,
+    sim_time = float(step * dt) if physics_fault else float(d.time)
+    return EpisodeResult(trace, status, reason, sim_time_s=sim_time, wall_time_s=wall,
                          events=events, controller_stats=stats)
 
 
 def _set_payload_mass(m: mujoco.MjModel, p, mass: float) -> None:
+    delta = mass - float(m.body_mass[p.body_id])
     m.body_mass[p.body_id] = mass
     m.body_inertia[p.body_id] = p.unit_inertia * mass
+    # Keep the compiled subtree masses in step (MuJoCo's subtree_com and subtreecom sensors divide by them).
+    b = p.body_id
+    while True:
+        m.body_subtreemass[b] += delta
+        if b == 0:
+            break
+        b = int(m.body_parentid[b])
 
 
 def _record_state(A, k, t, world, d, obs, payload_mass, carried, feet_sites) -> None:

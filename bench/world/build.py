@@ -22,6 +22,11 @@ from bench.world.payloads import PayloadSpec, add_payload
 from bench.world.terrain import Terrain, build_terrain
 
 
+#: A locked joint's equality constraint: time constant in timesteps (MuJoCo's safe minimum is 2) and impedance.
+LOCK_TIMECONST_STEPS = 2.0
+LOCK_SOLIMP = (0.99, 0.99, 0.001, 0.5, 2.0)
+
+
 @dataclass
 class PayloadHandle:
     """Ids of one payload in the compiled world."""
@@ -117,12 +122,15 @@ def build_world(scenario, manifest: RobotManifest | None = None) -> World:
     trunk = spec.body(manifest.trunk)
     payload_specs: list[PayloadSpec] = [add_payload(spec, trunk, p) for p in scenario.payloads]
 
-    # A locked joint is an equality constraint, off until the fault switches it on.
+    # A locked joint is an equality constraint, off until the fault switches it on. It is made as stiff as
+    # MuJoCo allows (time constant two timesteps, impedance 0.99): with the defaults (0.02 s, 0.95) a knee
+    # would yield by degrees under its own motor's full torque.
     lock_names = {}
     for i, f in enumerate(getattr(scenario, "faults", ())):
         if f.kind == "lock":
             lock_names[i] = f"fault_lock_{i}"
-            spec.add_equality(name=lock_names[i], type=mujoco.mjtEq.mjEQ_JOINT, name1=f.joint, active=False)
+            spec.add_equality(name=lock_names[i], type=mujoco.mjtEq.mjEQ_JOINT, name1=f.joint, active=False,
+                              solref=[LOCK_TIMECONST_STEPS * float(scenario.timestep), 1.0], solimp=list(LOCK_SOLIMP))
 
     model = spec.compile()
     name2id = lambda objtype, name: mujoco.mj_name2id(model, objtype, name)  # noqa: E731

@@ -180,18 +180,31 @@ def _soft_patch(piece, ctx: TerrainContext) -> None:
     ctx.sections.append(Section(x0, x1, _flat(ctx.level), "soft_patch"))
 
 
+#: Gaussian filter std per metre of wavelength, so that bumps are ``wavelength`` apart on average
+#: along a line: sqrt(3) / (2 pi sqrt(2)) (see :func:`rough_heights`).
+SIGMA_PER_WAVELENGTH = math.sqrt(3.0) / (2.0 * math.pi * math.sqrt(2.0))
+
+
 def rough_heights(nrow: int, ncol: int, cell_size: float, wavelength: float, seed: int) -> np.ndarray:
     """Seeded smooth random field in [0, 1], shape (nrow, ncol), tapered to 0 at the border.
 
     White noise from ``numpy.random.default_rng(seed)`` is low-pass filtered with a
-    Gaussian whose standard deviation is a quarter of ``wavelength``, then scaled
-    so that its minimum is 0 and its maximum 1. A cosine taper one wavelength wide
-    brings it to 0 at the patch edges so there is no step where the patch meets
-    the surrounding ground.
+    Gaussian kernel of standard deviation ``sigma = wavelength * sqrt(3) / (2 pi sqrt(2))``
+    (see :data:`SIGMA_PER_WAVELENGTH`), then scaled so that its minimum is 0 and its
+    maximum 1. A cosine taper one wavelength wide brings it to 0 at the patch edges
+    so there is no step where the patch meets the surrounding ground.
+
+    Why that sigma: filtering white noise with a Gaussian of std ``sigma`` gives a
+    stationary Gaussian field whose autocorrelation is Gaussian with std
+    ``s = sqrt(2) sigma``. Along any straight line, the mean number of local maxima
+    per metre of such a process is ``sqrt(m4 / m2) / (2 pi)`` (spectral moments; the
+    standard level-crossing result of random-process theory), which for this
+    autocorrelation is ``sqrt(3) / (2 pi s)``. Setting the mean distance between
+    neighbouring bumps to ``wavelength`` gives the sigma above.
     """
     rng = np.random.default_rng(seed)
     noise = rng.standard_normal((nrow, ncol))
-    sigma_cells = max(wavelength / 4.0 / cell_size, 0.5)
+    sigma_cells = max(wavelength * SIGMA_PER_WAVELENGTH / cell_size, 0.5)
     radius = int(math.ceil(3 * sigma_cells))
     k = np.exp(-0.5 * (np.arange(-radius, radius + 1) / sigma_cells) ** 2)
     k /= k.sum()

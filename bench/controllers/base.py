@@ -1,0 +1,59 @@
+"""The controller protocol and the observation a controller sees each control tick.
+
+A controller is given the nominal robot (robot-only model, no world) once in
+``reset`` and then, every control tick, an :class:`Observation` and the current
+velocity command ``[vx, vy, yaw_rate]`` (body frame). It returns joint torques in
+manifest order. The runner preallocates the observation arrays and updates them
+in place, so a controller may keep references to them between ticks.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Protocol, runtime_checkable
+
+import numpy as np
+
+if TYPE_CHECKING:  # pragma: no cover - typing only
+    from bench.robot.model import NominalRobot
+
+
+@dataclass
+class Privileged:
+    """True state the runner exposes for convenience; marked privileged because a
+    real robot would have to estimate it."""
+
+    base_pos: np.ndarray = field(default_factory=lambda: np.zeros(3))  # world, m
+    base_linvel: np.ndarray = field(default_factory=lambda: np.zeros(3))  # world, m/s
+
+
+@dataclass
+class Observation:
+    """Sensor readings at one control tick (arrays updated in place by the runner)."""
+
+    t: float = 0.0
+    imu_quat: np.ndarray = field(default_factory=lambda: np.array([1.0, 0.0, 0.0, 0.0]))  # w,x,y,z world
+    imu_gyro: np.ndarray = field(default_factory=lambda: np.zeros(3))  # body rad/s
+    imu_accel: np.ndarray = field(default_factory=lambda: np.zeros(3))  # body specific force m/s^2
+    joint_pos: np.ndarray = field(default_factory=lambda: np.zeros(0))  # (J,) rad
+    joint_vel: np.ndarray = field(default_factory=lambda: np.zeros(0))  # (J,) rad/s
+    foot_contact: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=bool))  # (F,)
+    privileged: Privileged = field(default_factory=Privileged)
+
+    @classmethod
+    def zeros(cls, n_joints: int, n_feet: int) -> "Observation":
+        """An observation with arrays of the right sizes, for runners and tests."""
+        return cls(
+            joint_pos=np.zeros(n_joints),
+            joint_vel=np.zeros(n_joints),
+            foot_contact=np.zeros(n_feet, dtype=bool),
+        )
+
+
+@runtime_checkable
+class Controller(Protocol):
+    """What the runner calls. ``stats`` is optional."""
+
+    def reset(self, robot: "NominalRobot", control_dt: float) -> None: ...
+
+    def step(self, obs: Observation, command: np.ndarray) -> np.ndarray: ...

@@ -1,0 +1,366 @@
+"""The two reference controller stacks: ``force-qp`` and ``force-qp-l1``.
+
+Both are assembled from the parts in this package and differ in exactly one
+thing: ``force-qp-l1`` adds an L1 adaptive augmentation of the trunk dynamics.
+Per control tick:
+
+1. ``LegKinematics.update``: pose the nominal robot from the observation (feet,
+   Jacobians, COM).
+2. Command shaping: the body-frame command ``[vx, vy, yaw_rate]`` is rate
+   limited (``max_lin_acc``, ``max_yaw_acc``), turned to world by the current
+   heading and integrated into a desired heading and horizontal position (the
+   position error is clipped to ``max_pos_err_m`` so a blocked robot does not
+   wind up). The desired height is the nominal standing height above the ground
+   estimate under the trunk (``GroundPlane``: a plane through the last contact
+   point of every foot), the desired vertical velocity follows that plane's
+   slope, and the desired attitude is level at the desired heading. The
+   controller never knows the terrain; this is all it infers.
+3. ``GaitScheduler``: stands while the shaped command is zero; trots (from a
+   double-support point, with load ramps) as soon as it is not, and returns to
+   standing once the command has been zero for a while. (Documented choice:
+   it trots when commanded to move, stands otherwise.)
+4. ``DesiredWrench``: PD + nominal gravity compensation -> body wrench.
+   ``force-qp-l1`` first runs ``L1Adaptive`` on the trunk error state and writes
+   its adaptive acceleration into the wrench's feed-forward slot.
+5. ``ForceQP``: stance ground reaction forces, ``tau = -J^T f`` on stance legs.
+6. ``SwingPlanner``: Raibert foothold + velocity feedback, Bezier path, Cartesian
+   PD through ``J^T``. Every leg also gets the nominal model's gravity/Coriolis
+   joint torques (``qfrc_bias``), so the SRB forces act as modelled.
+7. Clip to the manifest torque limits.
+
+Neither stack is told about payloads: only the nominal robot's mass, inertia
+and COM are used.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+
+import numpy as np
+
+from bench.controllers import so3
+from bench.controllers.force_qp import ForceQP
+from bench.controllers.gait import GaitScheduler
+from bench.controllers.ground import GroundPlane
+from bench.controllers.kinematics import LegKinematics
+from bench.controllers.l1 import L1Adaptive
+from bench.controllers.swing import SwingPlanner
+from bench.controllers.wrench import DesiredWrench
+
+CHANNELS = ("x", "y", "z", "roll", "pitch", "yaw")
+
+
+class ForceQPController:
+    """Trotting controller: SRB force QP for stance, Cartesian PD for swing.
+
+    Parameters (all keyword, all have defaults)
+    -------------------------------------------
+    gait_period_s, duty, load_ramp: gait scheduler (see ``gait.py``).
+    swing_height_m, k_vel, max_reach_m, swing_kp, swing_kd: swing planner.
+    leg_bias_ff: add the nominal model's gravity/Coriolis joint torques (feed-forward).
+    mu, fz_min_n, fz_max_n, alpha, beta, wrench_weights, solver, qp_direct: force QP
+        (``qp_direct`` calls DAQP without the qpsolvers wrapper, see ``force_qp.py``).
+    kp_pos, kd_pos, kp_rot, kd_rot: trunk PD (accelerations per unit error).
+    max_lin_acc (m/s^2), max_yaw_acc (rad/s^2): command rate limits.
+    max_pos_err_m, max_yaw_err_rad: clip on the horizontal position / heading error.
+    move_threshold: command size (m/s or rad/s) above which it trots.
+    ground_tau_s: time constant of the ground-height estimate (``ground.py``).
+    """
+
+    name = "force-qp"
+
+    def __init__(
+        self,
+        gait_period_s: float = 0.36,
+        duty: float = 0.6,
+        load_ramp: float = 0.05,
+        swing_height_m: float = 0.07,
+        k_vel: float = 0.06,
+        max_reach_m: float = 0.15,
+        swing_kp=(700.0, 700.0, 700.0),
+        swing_kd=(18.0, 18.0, 18.0),
+        leg_bias_ff: bool = True,
+        mu: float = 0.5,
+        fz_min_n: float = 5.0,
+        fz_max_n: float = 300.0,
+        alpha: float = 1e-4,
+        beta: float = 1e-4,
+        wrench_weights=(1.0, 1.0, 1.0, 20.0, 20.0, 10.0),
+        solver: str = "daqp",
+        qp_direct: bool = False,
+        kp_pos=(40.0, 40.0, 100.0),
+        kd_pos=(12.0, 12.0, 20.0),
+        kp_rot=(250.0, 250.0, 200.0),
+        kd_rot=(30.0, 30.0, 28.0),
+        max_lin_acc: float = 1.5,
+        max_yaw_acc: float = 3.0,
+        max_pos_err_m: float = 0.08,
+        max_yaw_err_rad: float = 0.3,
+        move_threshold: float = 0.02,
+        ground_tau_s: float = 0.05,
+    ) -> None:
+        self.params = dict(locals())
+        self.params.pop("self")
+        self.params.pop("__class__", None)
+        self.robot = None
+
+    # ------------------------------------------------------------------ setup
+    def reset(self, robot, control_dt: float) -> None:
+        p = self.params
+        self.robot = robot
+        self.dt = float(control_dt)
+        self.kin = LegKinematics(robot, with_bias=p["leg_bias_ff"])
+        nf, nj = self.kin.n_feet, self.kin.n_joints
+        self.n_feet, self.n_joints = nf, nj
+        self.gait = GaitScheduler(p["gait_period_s"], p["duty"], load_ramp=p["load_ramp"])
+        self.swing = SwingPlanner(nf, p["swing_height_m"], p["k_vel"], p["max_reach_m"],
+                                  kp=p["swing_kp"], kd=p["swing_kd"])
+        self.qp = ForceQP(nf, mu=p["mu"], fz_min_n=p["fz_min_n"], fz_max_n=p["fz_max_n"],
+                          alpha=p["alpha"], beta=p["beta"], wrench_weights=p["wrench_weights"],
+                          solver=p["solver"], direct=p["qp_direct"])
+        self.wrench = DesiredWrench(robot.mass_kg, robot.trunk_inertia_body,
+                                    p["kp_pos"], p["kd_pos"], p["kp_rot"], p["kd_rot"])
+        self.height_nominal = float(robot.nominal_height)
+        self.torque_limits = np.asarray(robot.torque_limits, dtype=float).copy()
+        self.max_lin_step = p["max_lin_acc"] * self.dt
+        self.max_yaw_step = p["max_yaw_acc"] * self.dt
+        self.ground = GroundPlane(nf, p["ground_tau_s"], self.dt)
+
+        self.nominal_xy = self.kin.foot_nominal_body[:, 0:2].copy()
+        self._nominal_xy = [tuple(map(float, xy)) for xy in self.nominal_xy]
+        self._neg_limits = -self.torque_limits
+        self._move_threshold = float(p["move_threshold"])
+        self._bias_ff = bool(p["leg_bias_ff"])
+        self._max_pos_err = float(p["max_pos_err_m"])
+        self._max_yaw_err = float(p["max_yaw_err_rad"])
+
+        # state and work arrays
+        self.cmd = [0.0, 0.0, 0.0]
+        self._p_des = [0.0, 0.0, 0.0]
+        self._u_list = [0.0] * (3 * nf)
+        self.p_des = np.zeros(3)
+        self.v_des = np.zeros(3)
+        self.rot_des = np.eye(3)
+        self.w_des = np.zeros(3)
+        self.yaw_des = 0.0
+        self.ground_z = 0.0
+        self.r = np.zeros((nf, 3))
+        self.u = np.zeros(3 * nf)
+        self.tau = np.zeros(nj)
+        self._prev_contact = [True] * nf
+        self._started = False
+        self.ticks = 0
+        self.step_time_s = 0.0
+        self._reset_extra()
+
+    def _reset_extra(self) -> None:
+        """Hook for the adaptive stack."""
+
+    # ------------------------------------------------------------------- tick
+    def step(self, obs, command) -> np.ndarray:
+        t0 = time.perf_counter()
+        kin = self.kin
+        kin.update(obs)
+        rot = kin.rot
+        pos = obs.privileged.base_pos.tolist()
+        vel_arr = obs.privileged.base_linvel
+        vel = vel_arr.tolist()
+        dt = self.dt
+        if not self._started:
+            self._start(obs)
+
+        # command shaping
+        c = self.cmd
+        cx, cy_, cz = float(command[0]), float(command[1]), float(command[2])
+        ls, ys = self.max_lin_step, self.max_yaw_step
+        c[0] += min(ls, max(-ls, cx - c[0]))
+        c[1] += min(ls, max(-ls, cy_ - c[1]))
+        c[2] += min(ys, max(-ys, cz - c[2]))
+        thr = self._move_threshold
+        moving = (cx != 0.0 or cy_ != 0.0 or cz != 0.0
+                  or abs(c[0]) > thr or abs(c[1]) > thr or abs(c[2]) > thr)
+
+        r00, r10 = rot[0, 0], rot[1, 0]
+        yaw = math.atan2(r10, r00)
+        cyaw, syaw = math.cos(yaw), math.sin(yaw)
+        vx = cyaw * c[0] - syaw * c[1]
+        vy = syaw * c[0] + cyaw * c[1]
+        pd = self._p_des
+        lim = self._max_pos_err
+        for k, vk in ((0, vx), (1, vy)):
+            v = pd[k] + vk * dt
+            e = v - pos[k]
+            if e > lim:
+                v = pos[k] + lim
+            elif e < -lim:
+                v = pos[k] - lim
+            pd[k] = v
+        yd = self.yaw_des + c[2] * dt
+        ey = math.remainder(yd - yaw, math.tau)
+        ylim = self._max_yaw_err
+        if ey > ylim:
+            yd = yaw + ylim
+        elif ey < -ylim:
+            yd = yaw - ylim
+        self.yaw_des = yd
+        so3.rot_z(yd, out=self.rot_des)
+
+        # gait
+        gait = self.gait
+        gait.update(dt, moving)
+        contact = gait.contact_list
+
+        # ground: plane through the last contact point of each foot
+        fp = kin.foot_pos.tolist()
+        fc = obs.foot_contact.tolist()
+        if not any(fc):
+            # no contact sensing reported (or airborne): trust fully loaded stance feet
+            fc = [ld >= 1.0 for ld in gait.load_list]
+        fh = kin.foot_height_nominal
+        ground = self.ground
+        ground.observe(fp, [contact[i] and fc[i] for i in range(self.n_feet)], fh)
+        gz, gx, gy = ground.fit(pos[0], pos[1])
+        self.ground_z = gz
+        pd[2] = gz + self.height_nominal
+        self.p_des[:] = pd
+        self.v_des[0], self.v_des[1], self.v_des[2] = vx, vy, gx * vx + gy * vy
+        self.w_des[2] = c[2]
+
+        # wrench (+ adaptive term) and stance forces
+        wr = self.wrench
+        wr.update_errors(obs.privileged.base_pos, vel_arr, rot, obs.imu_gyro, self.p_des, self.v_des,
+                         self.rot_des, self.w_des)
+        self._adapt()
+        w = wr.compute_wrench(rot)
+        np.subtract(kin.foot_pos, kin.com, out=self.r)
+        f = self.qp.solve(self.r, w, gait.load_list).tolist()
+
+        # per-foot Cartesian force on the foot: -f for stance, swing PD otherwise
+        sw = self.swing
+        fv = None
+        t_st = gait.stance_duration_s
+        t_sw = gait.swing_duration_s
+        u = self._u_list
+        prev = self._prev_contact
+        nom = self._nominal_xy
+        for i in range(self.n_feet):
+            j = 3 * i
+            if contact[i]:
+                u[j] = -f[j]; u[j + 1] = -f[j + 1]; u[j + 2] = -f[j + 2]
+            else:
+                if fv is None:
+                    fv = kin.foot_vel.tolist()
+                if prev[i]:
+                    sw.start_swing(i, fp[i])
+                nx, ny = nom[i]
+                ox, oy = cyaw * nx - syaw * ny, syaw * nx + cyaw * ny
+                fh_i = sw.plan_foothold(i, pos[0] + ox, pos[1] + oy, ox, oy, vel[0], vel[1], vx, vy, c[2],
+                                        gait.time_to_touchdown_s(i), t_st, 0.0)
+                fh_i[2] = ground.height_at(fh_i[0], fh_i[1], pos[0], pos[1]) + fh
+                u[j], u[j + 1], u[j + 2] = sw.track(i, gait.swing_phase_list[i], t_sw, fp[i], fv[i])
+            prev[i] = contact[i]
+        self.u[:] = u
+
+        tau = kin.torques(self.u, self.tau)
+        # the legs' own gravity/Coriolis torques (nominal model): with them the
+        # stance forces act on the whole robot as the SRB model assumes
+        if self._bias_ff:
+            tau += kin.bias
+        np.minimum(tau, self.torque_limits, out=tau)
+        np.maximum(tau, self._neg_limits, out=tau)
+        self.ticks += 1
+        self.step_time_s += time.perf_counter() - t0
+        return tau
+
+    def _start(self, obs) -> None:
+        kin = self.kin
+        self._p_des[:] = obs.privileged.base_pos.tolist()
+        self.yaw_des = so3.yaw_of_mat(kin.rot)
+        self.ground.reset(kin.foot_pos.tolist(), kin.foot_height_nominal)
+        self._started = True
+
+    def _adapt(self) -> None:
+        """Hook: the adaptive stack writes ``self.wrench.a_ff`` here."""
+
+    def stats(self) -> dict[str, float]:
+        return {
+            "qp_fallbacks": float(self.qp.fallbacks) if self.robot else 0.0,
+            "qp_ms_mean": self.qp.mean_solve_ms if self.robot else 0.0,
+            "ctrl_ms_mean": 1e3 * self.step_time_s / self.ticks if self.robot and self.ticks else 0.0,
+        }
+
+
+class ForceQPL1Controller(ForceQPController):
+    """``force-qp`` plus an L1 adaptive augmentation of the trunk dynamics.
+
+    The reference model is the trunk PD closed loop per channel,
+    ``e_ddot = -Kp e - Kd e_dot (+ u + sigma)``, state
+    ``[e_pos(3), e_rot(3), e_vel(3), e_angvel(3)]`` (``actual - desired``; x y z
+    world, roll pitch yaw body). The adaptive acceleration ``u`` of the chosen
+    channels enters the desired wrench's feed-forward slot, so it is scaled by
+    the nominal mass / inertia like the PD terms.
+
+    Extra parameters
+    ----------------
+    l1_channels: which of ``x y z roll pitch yaw`` get an adaptive input (all six).
+    l1_bandwidth: C(s) cut-off per channel, rad/s (a scalar, six values x .. yaw,
+        or one per chosen channel). Low on x/y (5 rad/s: the horizontal error
+        mostly reflects stepping, which the filter should not chase), high on
+        z/roll/pitch (40 rad/s) where the payload acts.
+    l1_predictor_pole: ``a`` in ``As = -a I`` (1/s); ``a Ts`` small keeps the
+        one-sample estimate's bias ``exp(-a Ts)`` near 1.
+    l1_u_max: clip on each adaptive acceleration (m/s^2 or rad/s^2), same forms;
+        z 12 m/s^2 covers a load up to about 1.2x the body mass.
+    """
+
+    name = "force-qp-l1"
+
+    def __init__(
+        self,
+        l1_channels=CHANNELS,
+        l1_bandwidth=(5.0, 5.0, 40.0, 40.0, 40.0, 30.0),
+        l1_predictor_pole: float = 5.0,
+        l1_u_max=(5.0, 5.0, 12.0, 120.0, 120.0, 40.0),
+        **kwargs,
+    ) -> None:
+        super().__init__(**kwargs)
+        self.params.update(l1_channels=tuple(l1_channels), l1_bandwidth=l1_bandwidth,
+                           l1_predictor_pole=l1_predictor_pole, l1_u_max=l1_u_max)
+
+    def _reset_extra(self) -> None:
+        p = self.params
+        kp, kd = self.wrench.kp, self.wrench.kd
+        am = np.zeros((12, 12))
+        am[0:6, 6:12] = np.eye(6)
+        am[6:12, 0:6] = -np.diag(kp)
+        am[6:12, 6:12] = -np.diag(kd)
+        chans = [CHANNELS.index(ch) for ch in p["l1_channels"]]
+        bm = np.zeros((12, len(chans)))
+        for j, ch in enumerate(chans):
+            bm[6 + ch, j] = 1.0
+        bw = self._per_channel(p["l1_bandwidth"], chans)
+        umax = None if p["l1_u_max"] is None else self._per_channel(p["l1_u_max"], chans)
+        self.l1 = L1Adaptive(am, bm, self.dt, bandwidth=bw, predictor_pole=p["l1_predictor_pole"],
+                             u_max=umax)
+        self._l1_chans = np.asarray(chans, dtype=np.int64)
+        self._l1_all = chans == list(range(len(CHANNELS)))
+
+    @staticmethod
+    def _per_channel(value, chans) -> np.ndarray:
+        """A scalar, six values (x .. yaw) or one value per chosen channel -> per chosen channel."""
+        v = np.asarray(value, dtype=float)
+        if v.ndim == 0:
+            return np.full(len(chans), float(v))
+        if v.shape == (len(CHANNELS),):
+            return v[chans]
+        if v.shape == (len(chans),):
+            return v
+        raise ValueError(f"expected a scalar, 6 values or {len(chans)} values, got shape {v.shape}")
+
+    def _adapt(self) -> None:
+        u = self.l1.update(self.wrench.error_state)
+        if self._l1_all:
+            self.wrench.a_ff[:] = u
+        else:
+            self.wrench.a_ff[self._l1_chans] = u

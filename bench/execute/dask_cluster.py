@@ -1,0 +1,181 @@
+"""The Dask executor: ``--cluster local`` or ``--cluster tcp://HOST:PORT``.
+
+``local`` starts a ``distributed.LocalCluster`` of single-threaded worker
+processes on this machine (one per core unless ``--workers`` says otherwise);
+an address connects to a scheduler that already runs, so that a team's
+cluster, or a batch system running Dask workers, takes the load. Workers need
+the bench (and the controller's package) installed in the same versions.
+
+Jobs are submitted as the cluster has threads free (never more in flight than
+its total thread count), so that a worker holds one episode at a time: when a
+worker dies, only the episode it was running is suspected. The scheduler
+reports the death as ``KilledWorker`` (locally it is told to give up at the
+first death, ``allowed-failures: 0``); the episode is then tried once more,
+and a second death makes it an ``error`` with the reason, while the rest of
+the run goes on.
+"""
+
+from __future__ import annotations
+
+import itertools
+import logging
+from collections import deque
+from typing import Callable, Iterator
+
+from bench.execute.executors import ExecutorError, OnError, default_workers, describe_exception
+
+#: Tries of one episode whose worker died (the first death may have been a neighbour's fault).
+MAX_TRIES = 2
+CONNECT_TIMEOUT_S = 15
+
+
+def _import_distributed():
+    try:
+        import dask  # noqa: F401
+        import distributed
+    except ImportError:
+        raise ExecutorError("--cluster needs Dask: pip install 'quadruped-bench[dask]' "
+                            "(installs dask and distributed)") from None
+    return distributed
+
+
+class DaskExecutor:
+    """Runs jobs on a Dask distributed cluster."""
+
+    name = "dask"
+
+    def __init__(self, cluster: str = "local", workers: int | None = None):
+        distributed = _import_distributed()
+        import dask
+
+        self.address = cluster
+        self.cluster = None
+        self._keys = itertools.count()
+        self.worker_deaths = 0
+        if cluster == "local":
+            n = default_workers() if workers is None else int(workers)
+            # allowed-failures 0: a death is reported at once (this class retries it itself);
+            # worker-saturation 1.0: a worker is handed one queued episode per thread, no more.
+            with dask.config.set({"distributed.scheduler.allowed-failures": 0,
+                                  "distributed.scheduler.worker-saturation": 1.0}):
+                try:
+                    self.cluster = distributed.LocalCluster(
+                        n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
+                        silence_logs=logging.CRITICAL, preload=["bench.execute.job"])
+                    self.client = distributed.Client(self.cluster, set_as_default=False)
+                except Exception as exc:  # noqa: BLE001
+                    self.close()
+                    raise ExecutorError(f"cannot start a local Dask cluster of {n} workers: "
+                                        f"{describe_exception(exc)}") from None
+        else:
+            if "://" not in cluster:
+                raise ExecutorError(f"--cluster {cluster!r}: expected 'local' or a scheduler address such as "
+                                    f"tcp://10.0.0.5:8786")
+            try:
+                self.client = distributed.Client(cluster, timeout=CONNECT_TIMEOUT_S, set_as_default=False)
+            except Exception as exc:  # noqa: BLE001 - OSError, TimeoutError, ValueError for a bad address
+                raise ExecutorError(f"cannot reach the Dask scheduler at {cluster}: {describe_exception(exc)}") \
+                    from None
+            try:
+                self.check_workers()
+            except ExecutorError:
+                self.close()
+                raise
+        self.workers = self.threads()
+
+    def check_workers(self) -> None:
+        """Every worker must run the same bench source, MuJoCo, NumPy and Python as this machine."""
+        from bench.execute.executors import code_fingerprint
+
+        here = code_fingerprint()
+        try:
+            theirs = self.client.run(code_fingerprint)
+        except Exception as exc:  # noqa: BLE001 - e.g. bench not installed on the workers
+            raise ExecutorError(f"the workers of {self.address} cannot run the bench: {describe_exception(exc)}; "
+                                f"install the same quadruped-bench (and controller package) on every worker") from None
+        if not theirs:
+            raise ExecutorError(f"the Dask scheduler at {self.address} has no workers")
+        for worker, fp in sorted(theirs.items()):
+            diff = [f"{k} {fp.get(k)} there, {v} here" for k, v in here.items() if fp.get(k) != v]
+            if diff:
+                raise ExecutorError(f"worker {worker} of {self.address} would not give the same results: "
+                                    f"{'; '.join(diff)}. Install the same versions on every worker (and restart "
+                                    f"the workers after changing the code)")
+
+    def threads(self) -> int:
+        """Total worker threads in the cluster now (at least 1)."""
+        try:
+            return max(1, sum(self.client.nthreads().values()))
+        except Exception:  # noqa: BLE001
+            return 1
+
+    def map(self, fn: Callable, jobs: list, on_error: OnError | None = None) -> Iterator[tuple[int, object]]:
+        from distributed import as_completed
+        from distributed.scheduler import KilledWorker
+
+        todo = deque(range(len(jobs)))
+        tries = [0] * len(jobs)
+        ac = as_completed(raise_errors=False, loop=self.client.loop)
+        index: dict[str, int] = {}
+
+        def submit_more() -> None:
+            limit = self.threads()
+            while todo and ac.count() < limit:
+                i = todo.popleft()
+                tries[i] += 1
+                fut = self.client.submit(fn, jobs[i], key=f"bench-episode-{next(self._keys)}", pure=False)
+                index[fut.key] = i
+                ac.add(fut)
+
+        submit_more()
+        try:
+            while ac.count() or todo:
+                if not ac.count():
+                    submit_more()
+                    continue
+                fut = next(ac)
+                i = index.pop(fut.key)
+                try:
+                    out = fut.result()
+                except KilledWorker as exc:
+                    self.worker_deaths += 1
+                    if tries[i] < MAX_TRIES:
+                        todo.appendleft(i)
+                        submit_more()
+                        continue
+                    reason = (f"the worker process running this episode died ({tries[i]} times, last on "
+                              f"{getattr(exc.last_worker, 'address', '?')})")
+                    if on_error is None:
+                        raise
+                    out = on_error(jobs[i], reason)
+                except Exception as exc:  # noqa: BLE001
+                    if on_error is None:
+                        raise
+                    out = on_error(jobs[i], f"the episode failed on the Dask cluster: {describe_exception(exc)}")
+                finally:
+                    fut.release()
+                submit_more()
+                yield i, out
+        finally:
+            for fut in list(ac.futures):
+                fut.cancel()
+
+    def close(self) -> None:
+        client, self.client = getattr(self, "client", None), None
+        if client is not None:
+            try:
+                client.close()
+            except Exception:  # noqa: BLE001
+                pass
+        cluster, self.cluster = self.cluster, None
+        if cluster is not None:
+            try:
+                cluster.close()
+            except Exception:  # noqa: BLE001
+                pass
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()

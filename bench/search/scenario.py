@@ -1,0 +1,108 @@
+"""A scenario as a limit-search predicate: value of one dotted path -> pass rate of its trials.
+
+The trials are drawn once, from the scenario as written, and the varied value
+is then set in each of them: every value is judged on the same seeds and the
+same randomized draws (common random numbers), so the curve moves only because
+the value moves. A trial at a value has the id ``name[trial=k,mass=6.5]`` and
+can be re-run alone with ``bench run``'s ``--only`` after writing that value
+into the file. A value passes when the trials' verdict passes, the same rule
+as ``bench run``: ``pass_rate_min`` against the lower bound of the 95 % Wilson
+interval, or every trial passing when there is none.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from bench.errors import ScenarioErrors
+from bench.execute.trials import is_trial_scenario, judge
+from bench.search.limit import Evaluation
+
+
+class ScenarioPredicate:
+    """``predicate(values) -> [Evaluation]`` for ``find_limit``; runs episodes on ``executor``."""
+
+    def __init__(self, scenario, path: str, *, controller: str, executor, limits=None, trials: int | None = None,
+                 required: float | None = None, seed: int | None = None, out_dir: str | Path | None = None,
+                 on_outcome=None):
+        from bench.scenario.compose import derive
+        from bench.scenario.trials import expand_trials
+
+        overrides: dict = {}
+        if trials is not None:
+            overrides["trials"] = int(trials)
+        if seed is not None:
+            overrides["seed"] = int(seed)
+        base = derive(scenario, overrides, "") if overrides else scenario
+        self.scenario = scenario
+        self.path = path
+        self.label = path.split(".")[-1]
+        self.controller = controller
+        self.executor = executor
+        self.limits = limits
+        self.trial_scenarios = expand_trials(base) if is_trial_scenario(base) else [base]
+        self.required = required if required is not None else base.criteria.get("pass_rate_min")
+        self.out_dir = Path(out_dir) if out_dir is not None else None
+        self.on_outcome = on_outcome
+        self.integer = False
+        self.episodes = 0
+        self.results: list[dict] = []
+
+    # ------------------------------------------------------------------ values
+
+    def cast(self, value: float):
+        return int(round(value)) if self.integer else float(value)
+
+    def scenarios_at(self, value: float) -> list:
+        """The trial scenarios with ``path`` set to ``value`` (raises ``ScenarioErrors`` when invalid)."""
+        from bench.scenario.compose import derive
+        from bench.scenario.ids import format_label_value
+
+        v = self.cast(value)
+        suffix = f"{self.label}={format_label_value(v)}"
+        return [derive(t, {self.path: v}, suffix) for t in self.trial_scenarios]
+
+    def check_range(self, lo: float, hi: float) -> None:
+        """Both ends must give valid scenarios; detects an integer field (e.g. a number of steps).
+
+        Raises ``ScenarioErrors`` (located in the scenario file) when an end is invalid.
+        """
+        try:
+            self.scenarios_at(lo + (hi - lo) * 0.5003)  # a non-round value: an integer field rejects it
+        except ScenarioErrors as e:
+            if any("expected an integer" in err.message for err in e.errors):
+                self.integer = True
+            else:
+                raise
+        for v in (lo, hi):
+            self.scenarios_at(v)
+
+    # ------------------------------------------------------------------ predicate
+
+    def __call__(self, values: list[float]) -> list[Evaluation]:
+        from bench.execute.job import Job, run_job
+        from bench.execute.outcomes import error_outcome
+        from bench.report.results import write_outcome
+
+        groups = [self.scenarios_at(v) for v in values]
+        flat = [(gi, sc) for gi, g in enumerate(groups) for sc in g]
+        jobs = [Job(sc, self.controller, None, self.limits) if self.limits is not None else
+                Job(sc, self.controller) for _, sc in flat]
+        results: list[dict | None] = [None] * len(jobs)
+        for i, outcome in self.executor.map(run_job, jobs, on_error=error_outcome):
+            results[i] = outcome.result
+            if self.out_dir is not None:
+                write_outcome(self.out_dir, flat[i][1].slug, outcome)
+            if self.on_outcome is not None:
+                self.on_outcome(outcome)
+        self.episodes += len(jobs)
+        self.results.extend(results)
+        out = []
+        for gi, v in enumerate(values):
+            rs = [results[i] for i, (g, _) in enumerate(flat) if g == gi]
+            j = judge(rs, self.required)
+            statuses = sorted({r["status"] for r in rs})
+            detail = {"ids": [r["scenario"] for r in rs], "failing": j["failing"], "statuses": statuses,
+                      "reasons": sorted({r["reason"] for r in rs if r["reason"]})[:3]}
+            out.append(Evaluation(j["rate"], j["verdict"] == "passed", j["trials"], tuple(j["interval"]), detail))
+        return out
