@@ -67,9 +67,8 @@ def _floating(write_scenario, load_one, faults: str, torque, duration=0.6):
 def test_actuators_are_plain_torque_motors():
     # What the trace calls joint_torque is what acts: gear 1, gain 1, no bias (MuJoCo's motor actuator).
     from bench.robot.locate import resolve_robot
-    from bench.robot.model import NominalRobot as NR
 
-    m = NR(resolve_robot("quad12")).model
+    m = NominalRobot(resolve_robot("quad12")).model
     np.testing.assert_array_equal(m.actuator_gear[:, 0], 1.0)
     np.testing.assert_array_equal(m.actuator_gainprm[:, 0], 1.0)
     np.testing.assert_array_equal(m.actuator_biasprm[:, :3], 0.0)

@@ -184,3 +184,37 @@ def test_total_mass_and_com_follow_attach_drop_drain_and_steps(write_scenario, l
     attached = (t >= 0.25) & (t < 0.3)
     before = t < 0.2
     assert tr["com_pos"][attached, 0].mean() < tr["com_pos"][before, 0].mean() - 0.01
+
+
+def test_loads_not_yet_attached_or_dropped_are_massless_and_touch_nothing(write_scenario, load_one):
+    sc = load_one(write_scenario("""
+        name: later
+        duration: 0.3
+        payloads:
+          - {name: sack, mass: 4.0, size: [0.1, 0.1, 0.1], offset: [0, 0, 0.1], attach_at: 0.2}
+          - {name: crate, mass: 2.0, size: [0.1, 0.1, 0.1], offset: [0, 0, 0.1], drop_at: 0.1}
+    """))
+    world = build_world(sc)
+    m = world.model
+    geoms = [p.geom_id for p in world.payloads]
+
+    class Spy(JointPDController):
+        """Holds the stance and, for this test only, peeks at the world's payload geoms each tick."""
+
+        def step(self, obs, command):
+            self.seen.append((obs.t, m.geom_contype[geoms].copy(), m.geom_rgba[geoms, 3].copy()))
+            return super().step(obs, command)
+
+    for _ in range(2):       # a second episode on the same world starts from the same state
+        spy = Spy()
+        spy.seen = []
+        ep = run_episode(world, sc, spy, NominalRobot(world.robot))
+        t, pm = ep.trace["t"], ep.trace["payload_mass"]
+        np.testing.assert_array_equal(pm[t < 0.2, 0], 0.0)
+        np.testing.assert_array_equal(pm[t >= 0.2, 0], 4.0)
+        np.testing.assert_array_equal(pm[t < 0.1, 1], 2.0)
+        np.testing.assert_array_equal(pm[t >= 0.1, 1], 0.0)
+        for tick_t, contype, alpha in spy.seen:
+            on = np.array([tick_t >= 0.2, tick_t < 0.1])
+            np.testing.assert_array_equal(contype != 0, on)     # collides with the ground only while carried
+            np.testing.assert_array_equal(alpha > 0, on)        # and is drawn only then

@@ -287,7 +287,7 @@ def test_heightfield_amplitude_measured_with_mj_ray(write_scenario, load_one):
     np.testing.assert_allclose(world.terrain.height_at(px, py), rays, atol=0.03 * 0.05)
 
 
-def test_heightfield_is_reproducible_from_the_seed(write_scenario, load_one, tmp_path):
+def test_heightfield_is_reproducible_from_the_seed(write_scenario, load_one):
     def field(seed):
         w = _world(write_scenario, load_one, ROUGH.format(seed=seed, height=0.02))
         return w.model.hfield_data.copy()

@@ -205,7 +205,7 @@ class Rough(TerrainPiece):
     length: float = spec(**_LENGTH)
     width: float = spec(3.0, **_WIDTH)
     height: float = spec(doc="highest bump above the level", unit="m", gt=0.0, le=0.5)
-    wavelength: float = spec(0.2, doc="typical distance between bumps", unit="m", gt=0.0, le=10.0)
+    wavelength: float = spec(0.2, doc="mean distance between neighbouring bumps along a line", unit="m", gt=0.0, le=10.0)
     cell_size: float = spec(0.02, doc="heightfield resolution", unit="m", ge=0.005, le=0.5)
     seed: int | None = spec(None, doc="random seed of the bumps", ge=0, le=2**32 - 1,
                             default_doc="the scenario seed")

@@ -44,6 +44,7 @@ import numpy as np
 from bench.controllers.base import Observation
 from bench.sim.events import Event, compile_forces, compile_masses, fault_events
 from bench.sim.trace import Trace
+from bench.world.payloads import PAYLOAD_CONTYPE, PAYLOAD_RGBA
 
 #: A fall: trunk origin closer to the ground under it than this share of the nominal height.
 FALL_HEIGHT_FRACTION = 0.4
@@ -338,8 +339,9 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     nominal_limits = np.asarray(world.robot.torque_limits, dtype=float)
     limit_now = nominal_limits.copy()
     payload_mass = np.array([float(p.spec.mass) if not p.spec.attach_at else 0.0 for p in world.payloads])
-    payload_geom_contype = np.array([m.geom_contype[p.geom_id] for p in world.payloads], dtype=int)
-    base_rgba_alpha = np.array([m.geom_rgba[p.geom_id, 3] for p in world.payloads])
+    # As built (not as a previous episode on this world may have left them).
+    payload_geom_contype = np.full(len(world.payloads), PAYLOAD_CONTYPE, dtype=int)
+    base_rgba_alpha = np.full(len(world.payloads), PAYLOAD_RGBA[3])
 
     # --- id tables for the hot loop ------------------------------------------------------
     trunk = world.trunk_body_id
@@ -373,8 +375,11 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
 
     # --- initial state -------------------------------------------------------------
     d.qpos[:] = world.initial_qpos
-    for p, mass in zip(world.payloads, payload_mass):
+    for i, (p, mass) in enumerate(zip(world.payloads, payload_mass)):
         _set_payload_mass(m, p, mass)
+        # A load not yet attached is massless, invisible and touches nothing, as after a drop.
+        m.geom_contype[p.geom_id] = payload_geom_contype[i] if mass > 0 else 0
+        m.geom_rgba[p.geom_id, 3] = base_rgba_alpha[i] if mass > 0 else 0.0
     try:
         mujoco.mj_forward(m, d)
     except mujoco.FatalError as exc:

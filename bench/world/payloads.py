@@ -18,6 +18,8 @@ import mujoco
 import numpy as np
 
 PAYLOAD_RGBA = (0.95, 0.55, 0.10, 1.0)
+#: Payload geoms collide with the ground only: contype 2 meets the terrain's conaffinity 3, not the robot's 1.
+PAYLOAD_CONTYPE = 2
 TRAY_RGBA = (0.35, 0.35, 0.40, 0.6)
 #: Armature on payload slide joints, kg: keeps the joint well posed at zero mass.
 PAYLOAD_ARMATURE = 1e-3
@@ -85,6 +87,6 @@ def add_payload(spec: mujoco.MjSpec, trunk: mujoco.MjsBody, p) -> PayloadSpec:
     # Payloads collide with the ground only (contype 2 meets the terrain's conaffinity).
     body.add_geom(
         name=geom_name, type=mujoco.mjtGeom.mjGEOM_BOX, size=[s / 2.0 for s in p.size],
-        rgba=list(PAYLOAD_RGBA), contype=2, conaffinity=0, mass=0.0, group=1,
+        rgba=list(PAYLOAD_RGBA), contype=PAYLOAD_CONTYPE, conaffinity=0, mass=0.0, group=1,
     )
     return PayloadSpec(p.name, body_name, geom_name, tuple(joints), unit)
