@@ -101,7 +101,7 @@ def _add_visuals(spec: mujoco.MjSpec, trunk_name: str) -> None:
     trunk.add_camera(name="track", mode=mujoco.mjtCamLight.mjCAMLIGHT_TRACKCOM,
                      pos=[-0.4, -1.6, 0.5], xyaxes=[0.97, -0.24, 0, 0.08, 0.33, 0.94])
     spec.worldbody.add_camera(name="side", pos=[2.0, -4.0, 1.0], xyaxes=[1, 0, 0, 0, 0.24, 0.97])
-    spec.worldbody.add_camera(name="top", pos=[2.0, 0.0, 6.0], xyaxes=[1, 0, 0, 0, 1, 0])
+    spec.worldbody.add_camera(name="top", pos=[1.0, 0.0, 3.2], xyaxes=[1, 0, 0, 0, 1, 0])
 
 
 def build_world(scenario, manifest: RobotManifest | None = None) -> World:

@@ -48,7 +48,9 @@ def add_payload(spec: mujoco.MjSpec, trunk: mujoco.MjsBody, p) -> PayloadSpec:
     """Add payload ``p`` (a scenario payload dataclass) to ``trunk`` in ``spec``."""
     body_name = f"payload_{p.name}"
     unit = box_unit_inertia(p.size)
-    initial_mass = 0.0 if p.attach_at else float(p.mass)
+    # Compiled with its full mass (MuJoCo refuses a massless body on a joint); a load
+    # attached later starts at zero mass, which the episode runner sets at t = 0.
+    initial_mass = float(p.mass)
     body = trunk.add_body(name=body_name, pos=list(p.offset))
     body.explicitinertial = True
     # An explicit inertial frame; without it MJCF export leaves the inertial element out.
