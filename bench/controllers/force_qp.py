@@ -23,12 +23,14 @@ in world axes (the controller does not know the terrain normal; use a ``mu``
 with margin).
 
 Solver: ``qpsolvers`` with back end ``solver`` (default ``"daqp"``, a dense
-dual active-set solver), warm started from the previous solution. The
+dual active-set solver), given the previous solution as warm start
+(``initvals``; back ends that cannot warm start ignore it). The
 ``qpsolvers.Problem`` of each contact pattern is built once over preallocated
-matrices, which are rewritten in place every tick, and handed to ``qpsolvers.solve_problem`` (the
-function ``qpsolvers.solve_qp`` calls after building a Problem). With
+matrices, which are rewritten in place every tick, and handed to
+``qpsolvers.solve_problem`` (what ``qpsolvers.solve_qp`` calls after building a
+Problem). With
 ``direct=True`` and ``solver="daqp"`` the same solver is called without the
-``qpsolvers`` wrapper on the same preallocated arrays (about 3x less time per
+``qpsolvers`` wrapper on the same preallocated arrays (2-3x less time per
 solve; the answer is the same).
 
 A failed or infeasible solve, an exception inside the solver, or non-finite

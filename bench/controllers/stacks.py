@@ -52,7 +52,7 @@ CHANNELS = ("x", "y", "z", "roll", "pitch", "yaw")
 
 
 class ForceQPController:
-    """Trotting controller: SRB force QP for stance, Cartesian PD for swing.
+    """Trotting controller: SRB force QP for stance, Cartesian PD for swing (no adaptation).
 
     Parameters (all keyword, all have defaults)
     -------------------------------------------
@@ -292,7 +292,7 @@ class ForceQPController:
 
 
 class ForceQPL1Controller(ForceQPController):
-    """``force-qp`` plus an L1 adaptive augmentation of the trunk dynamics.
+    """force-qp plus an L1 adaptive augmentation of the trunk dynamics (compensates unknown model error).
 
     The reference model is the trunk PD closed loop per channel,
     ``e_ddot = -Kp e - Kd e_dot (+ u + sigma)``, state

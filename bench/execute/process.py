@@ -163,7 +163,7 @@ class ProcessExecutor:
                     done, pending = cf.wait(pending, timeout=0.5, return_when=cf.FIRST_COMPLETED)
                     self._drain(started)
                     for fut in done:
-                        i = futures[fut]
+                        i = futures.pop(fut)   # drop the finished future: it holds the outcome (the trace)
                         try:
                             out = fut.result()
                         except BrokenProcessPool:

@@ -62,20 +62,33 @@ def children(pid: int) -> list[int]:
     return out
 
 
+def descendants(pid: int) -> list[int]:
+    """Every process below ``pid`` (pool workers are children of the fork server, not of this process)."""
+    out, todo = [], children(pid)
+    while todo:
+        p = todo.pop()
+        out.append(p)
+        todo += children(p)
+    return out
+
+
 def episodes(suite: str, max_duration: float | None):
     from bench.errors import ScenarioErrors
     from bench.execute import trials
     from bench.scenario import derive, load_scenarios
 
     eps, seeds, _ = trials.plan(load_scenarios([suite]))
-    out = []
+    out, cut = [], 0
     for sc, seed in zip(eps, seeds):
         if max_duration is not None and sc.duration > max_duration:
             try:
                 sc = derive(sc, {"duration": max_duration}, "")
+                cut += 1
             except ScenarioErrors:
                 pass   # an event after the cut: keep it whole
         out.append((sc, seed))
+    if max_duration is not None:
+        print(f"--max-duration {max_duration:g}: {cut} of {len(out)} episodes cut (the others have events later)")
     return out
 
 
@@ -105,9 +118,9 @@ def soak(args) -> int:
             done_per_round[k] += 1
             if done_per_round[k] == n:
                 me = os.getpid()
-                samples.append((k, rss_mb(me), sorted(rss_mb(c) for c in children(me))))
+                samples.append((k, rss_mb(me), sorted(rss_mb(c) for c in descendants(me))))
                 print(f"  round {k} complete at {time.perf_counter() - t0:6.1f} s: parent {samples[-1][1]:6.1f} MB, "
-                      f"workers {', '.join(f'{x:.1f}' for x in samples[-1][2])} MB", flush=True)
+                      f"fork server and workers {', '.join(f'{x:.1f}' for x in samples[-1][2])} MB", flush=True)
         breaks = ex.pool_breaks
     wall = time.perf_counter() - t0
 
@@ -147,7 +160,10 @@ def _slope(x: list[float], y: list[float]) -> float:
 
 
 def watchdog_cost(repeats: int) -> None:
-    """Episode wall time with the watchdog on and off (same episode), and the price of a per-tick timer."""
+    """Episode wall time with the watchdog off (twice: the A/A spread is the noise), on, and on at its
+    fastest period; and the price of the alternative, a one-shot timer armed and disarmed every tick."""
+    import random
+
     from bench.controllers.simple import ZeroController
     from bench.robot.model import NominalRobot
     from bench.scenario import load_scenarios
@@ -160,25 +176,36 @@ def watchdog_cost(repeats: int) -> None:
         path.write_text("name: float\nduration: 5\ninitial: {height_offset: 1.0}\ncriteria: {no_fall: false}\n")
         sc = load_scenarios([str(path)])[0]
     ticks = int(sc.duration * sc.control_rate)
+    world = build_world(sc)
+    world.model.opt.gravity[:] = 0.0
+    robot = NominalRobot(world.robot)
+    modes = {"off": (False, 2.0), "off again": (False, 2.0), "on (2 s limit, 0.2 s period)": (True, 2.0),
+             "on (0.05 s limit, 5 ms period)": (True, 0.05)}
 
-    def once(watchdog: bool) -> float:
-        world = build_world(sc)
-        world.model.opt.gravity[:] = 0.0
+    def once(watchdog: bool, tick_s: float) -> float:
         start = episode._Watchdog.start
         if not watchdog:
             episode._Watchdog.start = lambda self: False
         try:
-            ep = episode.run_episode(world, sc, ZeroController(), NominalRobot(world.robot))
+            ep = episode.run_episode(world, sc, ZeroController(), robot,
+                                     limits=episode.EpisodeLimits(tick_timeout_s=tick_s))
         finally:
             episode._Watchdog.start = start
         assert ep.interruptible == watchdog
         return ep.wall_time_s
 
-    on, off = [], []
-    for _ in range(repeats):   # interleaved, so that a change of machine load hits both alike
-        off.append(once(False))
-        on.append(once(True))
-    m_on, m_off = statistics.median(on), statistics.median(off)
+    times: dict[str, list[float]] = {m: [] for m in modes}
+    rng = random.Random(0)
+    for _ in range(repeats):   # all modes every repeat, in a shuffled order: load changes hit all alike
+        order = list(modes)
+        rng.shuffle(order)
+        for m in order:
+            times[m].append(once(*modes[m]))
+    base = statistics.median(times["off"])
+    print(f"watchdog: {ticks} ticks per episode, {repeats} repeats, medians (per-tick difference from 'off'):")
+    for m, v in times.items():
+        med = statistics.median(v)
+        print(f"  {m:32s} {med * 1e3:7.1f} ms  {(med - base) / ticks * 1e6:+6.2f} us/tick  ({(med / base - 1) * 100:+.1f} %)")
     signal.signal(signal.SIGALRM, lambda *a: None)
     n = 200_000
     t = time.perf_counter()
@@ -187,26 +214,24 @@ def watchdog_cost(repeats: int) -> None:
         signal.setitimer(signal.ITIMER_REAL, 0.0)
     arm = (time.perf_counter() - t) / n
     signal.signal(signal.SIGALRM, signal.SIG_DFL)
-    print(f"watchdog: {ticks} ticks, {repeats} repeats (medians): off {m_off * 1e3:.1f} ms, on {m_on * 1e3:.1f} ms "
-          f"-> {(m_on - m_off) / ticks * 1e6:+.2f} us per tick ({(m_on / m_off - 1) * 100:+.1f} %); "
-          f"arming a timer every tick instead would cost {arm * 1e6:.2f} us per tick "
-          f"({arm * ticks / m_off * 100:.1f} % of this episode)")
+    print(f"  a timer armed and disarmed every tick instead: {arm * 1e6:.2f} us/tick ({arm * ticks / base * 100:.1f} % "
+          f"of this episode)")
 
 
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--rounds", type=int, default=5)
+    ap.add_argument("--rounds", type=int, default=5, help="0: only the watchdog measurement")
     ap.add_argument("--workers", type=int, default=max(1, len(os.sched_getaffinity(0))))
     ap.add_argument("--controller", default="joint-pd")
     ap.add_argument("--suite", default=str(REPO / "scenarios"))
     ap.add_argument("--max-duration", type=float, default=None, metavar="S")
     ap.add_argument("--out", default=None)
-    ap.add_argument("--watchdog-repeats", type=int, default=7)
+    ap.add_argument("--watchdog-repeats", type=int, default=15)
     ap.add_argument("--no-watchdog", action="store_true", help="skip the watchdog cost measurement")
     args = ap.parse_args()
     if not args.no_watchdog:
         watchdog_cost(args.watchdog_repeats)
-    return soak(args)
+    return soak(args) if args.rounds > 0 else 0
 
 
 if __name__ == "__main__":
