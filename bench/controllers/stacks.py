@@ -72,7 +72,7 @@ class ForceQPController:
 
     def __init__(
         self,
-        gait_period_s: float = 0.36,
+        gait_period_s: float = 0.32,
         duty: float = 0.6,
         load_ramp: float = 0.05,
         swing_height_m: float = 0.07,
