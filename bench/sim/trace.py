@@ -25,6 +25,12 @@ CONTRACT_KEYS = (
 EXTRA_KEYS = ("qpos", "torque_limit", "controller_ms", "foot_contact", "payload_mass")
 
 
+def _umask() -> int:
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
 @dataclass
 class Trace:
     arrays: dict[str, np.ndarray]
@@ -69,6 +75,7 @@ class Trace:
         fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
         try:
             with os.fdopen(fd, "wb") as fh:
+                os.fchmod(fh.fileno(), 0o666 & ~_umask())  # mkstemp makes 0600; give the usual mode
                 fh.write(data)
                 fh.flush()
                 os.fsync(fh.fileno())
