@@ -15,8 +15,9 @@ import json
 import math
 import os
 import re
-import tempfile
 from pathlib import Path
+
+from bench.fileio import write_atomic  # noqa: F401 - re-exported
 
 #: Keys every result.json has (contracts.md); a file without one of them is not a complete result.
 RESULT_KEYS = ("scenario", "source", "controller", "seed", "status", "passed", "reason", "sim_time_s",
@@ -25,10 +26,6 @@ RESULT_KEYS = ("scenario", "source", "controller", "seed", "status", "passed", "
 #: Trace arrays that depend on the wall clock, left out of the trace digest.
 UNTIMED_EXCLUDE = ("controller_ms",)
 _TEMP = re.compile(r"^\..+\.[A-Za-z0-9_]+\.tmp$")
-# mkstemp makes 0600 files; a result file gets the mode an ordinary open() would give it (0666 minus the umask).
-_UMASK = os.umask(0o022)
-os.umask(_UMASK)
-_FILE_MODE = 0o666 & ~_UMASK
 
 
 def _clean(x):
@@ -40,25 +37,6 @@ def _clean(x):
     if isinstance(x, (list, tuple)):
         return [_clean(v) for v in x]
     return x
-
-
-def write_atomic(path: Path, data: bytes) -> None:
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            os.fchmod(fh.fileno(), _FILE_MODE)
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise
 
 
 def write_json(path: Path, obj) -> None:

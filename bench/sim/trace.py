@@ -8,12 +8,12 @@ allowed and never change meaning. ``meta`` carries the scalars scoring needs
 from __future__ import annotations
 
 import io
-import os
-import tempfile
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
+
+from bench.fileio import write_atomic
 
 #: Keys promised by contracts.md, in the order they are documented.
 CONTRACT_KEYS = (
@@ -23,12 +23,6 @@ CONTRACT_KEYS = (
 )
 #: Extra keys this bench adds (allowed by the contract).
 EXTRA_KEYS = ("qpos", "torque_limit", "controller_ms", "foot_contact", "payload_mass")
-
-
-def _umask() -> int:
-    mask = os.umask(0o022)
-    os.umask(mask)
-    return mask
 
 
 @dataclass
@@ -69,23 +63,8 @@ class Trace:
         return buf.getvalue()
 
     def save(self, path: str | Path) -> None:
-        """Write atomically: a temporary file in the same folder, then rename."""
-        path = Path(path)
-        data = self.to_npz_bytes()
-        fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-        try:
-            with os.fdopen(fd, "wb") as fh:
-                os.fchmod(fh.fileno(), 0o666 & ~_umask())  # mkstemp makes 0600; give the usual mode
-                fh.write(data)
-                fh.flush()
-                os.fsync(fh.fileno())
-            os.replace(tmp, path)
-        except BaseException:
-            try:
-                os.unlink(tmp)
-            except FileNotFoundError:
-                pass
-            raise
+        """Write atomically (see :mod:`bench.fileio`)."""
+        write_atomic(path, self.to_npz_bytes())
 
     @classmethod
     def load(cls, path: str | Path) -> "Trace":
