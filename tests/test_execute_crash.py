@@ -73,7 +73,10 @@ def test_segfault_and_exit_become_errors_and_the_rest_completes(stand):
     jobs = [Job(sc, c) for sc, c in zip(stand, ctrls)]
     with ProcessExecutor(2) as ex:
         got = dict(ex.map(run_job, jobs, on_error=error_outcome))
-        assert ex.pool_breaks >= 2  # each death broke the pool; the others were resubmitted
+        # Each death breaks the pool, but both deaths can fall in one break: when jobs 1 and 3 are
+        # running side by side, the pool breaks once with both of them started. Either way each
+        # one is then run alone, so the break count is 1 or 2 and nothing else is lost.
+        assert 1 <= ex.pool_breaks <= 2
         # the pool is usable again afterwards
         again = dict(ex.map(run_job, jobs[:1], on_error=error_outcome))
     assert sorted(got) == list(range(5))
