@@ -95,6 +95,21 @@ def test_hung_controller_is_interrupted_by_the_episode_limit(stand):
     assert_alarm_untouched()
 
 
+def test_zero_turns_a_limit_off(stand):
+    """``--tick-timeout 0`` / ``--episode-timeout 0``: no limit, not an instant timeout."""
+    once = fc.SlowOnce()
+    once.at = 5
+    once.SLEEP_S = 0.05
+    r = run(stand, once, EpisodeLimits(tick_timeout_s=0.0, episode_timeout_s=0.0)).result
+    assert r["status"] == "passed", r["reason"]
+    # the same call is over a per-tick limit smaller than it
+    once = fc.SlowOnce()
+    once.at = 5
+    once.SLEEP_S = 0.05
+    r = run(stand, once, EpisodeLimits(tick_timeout_s=0.01, episode_timeout_s=0.0)).result
+    assert r["status"] == "timeout" and "per-tick limit of 0.01 s" in r["reason"], r["reason"]
+
+
 def test_slow_controller_hits_the_episode_limit(stand):
     # every call 20 ms, under the per-tick limit; 0.3 s are used up after about 15 ticks
     r = run(stand, fc.Slow(), EpisodeLimits(tick_timeout_s=1.0, episode_timeout_s=0.3)).result

@@ -23,9 +23,9 @@ def register(sub) -> None:
     p.add_argument("--root", action="append", default=[], metavar="DIR",
                    help="extra folder that scenarios may reference files in (repeatable)")
     p.add_argument("--tick-timeout", type=float, default=2.0, metavar="S",
-                   help="wall-clock limit for one controller call, s (default 2)")
+                   help="wall-clock limit for one controller call, s (default 2; 0 means no limit)")
     p.add_argument("--episode-timeout", type=float, default=600.0, metavar="S",
-                   help="wall-clock limit for one episode, s (default 600)")
+                   help="wall-clock limit for one episode, s (default 600; 0 means no limit)")
     add_execution_options(p)
     p.add_argument("--only", action="append", default=[], metavar="ID",
                    help="run only the scenario or trial with this id (or result folder name), e.g. "

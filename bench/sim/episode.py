@@ -213,8 +213,8 @@ def _mujoco_message(warning, info: int, captured: list[str]) -> str:
 class EpisodeLimits:
     """Wall-clock limits; exceeding one ends the episode as ``timeout``.
 
-    ``tick_timeout_s``: one ``controller.step`` call (``None``: no limit). ``episode_timeout_s``: the
-    whole episode, ``reset`` included (``None``: no limit). Both interrupt a call stuck in Python code
+    ``tick_timeout_s``: one ``controller.step`` call (``None`` or a value <= 0: no limit).
+    ``episode_timeout_s``: the whole episode, ``reset`` included (``None`` or a value <= 0: no limit). Both interrupt a call stuck in Python code
     where the watchdog can run (see the module docstring), else they are checked after each call.
     """
 
@@ -284,7 +284,8 @@ def run_episode(world, scenario, controller, robot, *, seed: int | None = None,
     """Run ``scenario`` in ``world`` with ``controller`` (already constructed) and return the result."""
     limits = limits or EpisodeLimits()
     t_start = time.perf_counter()
-    deadline = math.inf if limits.episode_timeout_s is None else t_start + float(limits.episode_timeout_s)
+    ep_limit = limits.episode_timeout_s
+    deadline = math.inf if ep_limit is None or ep_limit <= 0 else t_start + float(ep_limit)
     watchdog = _Watchdog(limits.tick_timeout_s, deadline)
     captured: list[str] = []
     with _CaptureMujocoWarnings(captured):
