@@ -4,8 +4,9 @@ Registered through the ``pytest11`` entry point, so installing quadruped-bench
 is enough. It does nothing until asked: scenario files are collected only from
 the folders given by ``--bench-scenarios`` / ini ``bench_scenarios`` (or files
 named on the command line), and only those matching ``bench_glob``. Every
-matrix variant is an item of its own (``stand.yaml::stand[mass=6]``); scenario
-tags are markers (``-m payload``). An item runs its scenario with the
+matrix variant is an item of its own (``stand.yaml::stand[mass=6]``), and a
+scenario with ``trials:`` is one item that runs every trial and is judged on its
+pass rate as ``bench run`` judges it; scenario tags are markers (``-m payload``). An item runs its scenario with the
 configured controller, writes ``<bench_out>/<scenario>/result.json`` and
 ``trace.npz``, attaches the metrics with ``record_property`` (so they land in
 JUnit XML), appends to the history database, fails with a table of criteria
@@ -256,8 +257,11 @@ class ScenarioFile(pytest.File):
             raise self.CollectError("\n".join(str(e) for e in exc.errors)) from None
         except ScenarioError as exc:
             raise self.CollectError(str(exc)) from None
+        from bench.execute.trials import is_trial_scenario
+
         for sc in scenarios:
-            yield ScenarioItem.from_parent(self, name=sc.id, scenario=sc)
+            cls = TrialsItem if is_trial_scenario(sc) else ScenarioItem
+            yield cls.from_parent(self, name=sc.id, scenario=sc)
 
 
 def _register_tag(config, tag: str) -> bool:
@@ -310,6 +314,87 @@ class ScenarioItem(pytest.Item):
         except Exception:  # noqa: BLE001 - only a location for the report
             pass
         return self.path, line, f"scenario {self.scenario.id}"
+
+
+class TrialsItem(ScenarioItem):
+    """A scenario with ``trials:`` / ``randomize:``: runs every trial, one verdict on the pass rate.
+
+    The trials are exactly those of ``bench run`` (same ids, seeds and draws, from
+    ``bench.execute.trials.plan``), run one after another in this item, so under pytest-xdist a
+    scenario's trials stay on one worker. Each trial writes its own results folder and history
+    row; the item fails when the pass rate's 95 % Wilson lower bound is under ``pass_rate_min``
+    (every trial must pass without it), or when any trial regressed against the baseline.
+    """
+
+    def runtest(self) -> None:
+        from bench.execute import trials as trials_mod
+
+        if self.clash:
+            raise BenchFailure(self.clash)
+        settings = _settings(self.config)
+        episodes, _, groups = trials_mod.plan([self.scenario])
+        (group,) = groups
+        runs = [execute(self.config, self, ep, settings.controller, trial_of=self.scenario.id) for ep in episodes]
+        summary = {"scenario": group.scenario, "source": _display_path(self.config, Path(group.source)),
+                   "declared_trials": group.declared}
+        summary.update(trials_mod.judge([r.result for r in runs], group.required))
+        summary["trials_needed"] = trials_mod.min_trials(group.required)
+        _attach_trials(self, summary)
+        problems = []
+        if summary["verdict"] != "passed":
+            problems.append(_trials_report(self.config, summary, runs))
+        for run in runs:
+            if run.regressions:
+                problems.append(run.regression_report(_display_path(self.config, settings.baseline_path)))
+        if problems:
+            raise BenchFailure("\n\n".join(problems))
+
+
+def _attach_trials(node, summary: dict) -> None:
+    """The trial verdict as JUnit properties; ``bench.trials`` (JSON) also feeds summary.json."""
+    import json
+
+    lo, hi = summary["interval"]
+    props = node.user_properties
+    props.append(("bench.trials", json.dumps(summary, sort_keys=True)))
+    props.append(("bench.trials.verdict", summary["verdict"]))
+    props.append(("bench.trials.passed", f"{summary['passed']}/{summary['trials']}"))
+    props.append(("bench.trials.rate", summary["rate"]))
+    props.append(("bench.trials.interval_low", lo))
+    props.append(("bench.trials.interval_high", hi))
+    props.append(("bench.trials.required", "all" if summary["required"] is None else summary["required"]))
+    if summary["failing"]:
+        props.append(("bench.trials.failing", ", ".join(summary["failing"])))
+
+
+#: Failing trials whose whole report a failed trials item shows (the rest are listed by id).
+TRIAL_REPORTS_SHOWN = 3
+
+
+def _trials_report(config, summary: dict, runs: list) -> str:
+    from bench.cli.run import print_trials
+
+    buf = io.StringIO()
+    print_trials([summary], file=buf)
+    head = f"{summary['scenario']}: {summary['passed']} of {summary['trials']} trials passed; "
+    if summary["required"] is None or summary["required"] >= 1.0:
+        head += "every trial must pass"
+    else:
+        head += (f"the lower bound of the 95 % Wilson interval of the pass rate, {summary['interval'][0]:.2f}, "
+                 f"is under the required {summary['required']:g}")
+    lines = [head, buf.getvalue().rstrip()]
+    failing = [r for r in runs if not r.passed]
+    for run in failing[:TRIAL_REPORTS_SHOWN]:
+        lines.append("")
+        lines.append(run.report())
+    if len(failing) > TRIAL_REPORTS_SHOWN:
+        lines.append("")
+        lines.append(f"... and {len(failing) - TRIAL_REPORTS_SHOWN} more failing trials: "
+                     + ", ".join(r.result["scenario"] for r in failing[TRIAL_REPORTS_SHOWN:]))
+    first = failing[0].result["scenario"] if failing else f"{summary['scenario']}[trial=0]"
+    lines.append("")
+    lines.append(f"re-run one trial alone: bench run {summary['source']} --only '{first}'")
+    return "\n".join(lines)
 
 
 class BenchFailure(AssertionError):
@@ -460,7 +545,8 @@ def _render_video(settings: Settings, result_dir: Path, passed: bool, scenario) 
     return [Path(m) for m in made]
 
 
-def execute(config, node, scenario, controller, *, seed: int | None = None) -> BenchRun:
+def execute(config, node, scenario, controller, *, seed: int | None = None,
+            trial_of: str | None = None) -> BenchRun:
     """Run ``scenario`` with ``controller``; write its files, history and JUnit properties; compare it."""
     from bench.execute.job import Job, run_job
     from bench.report.results import write_outcome
@@ -468,6 +554,8 @@ def execute(config, node, scenario, controller, *, seed: int | None = None) -> B
     settings = _settings(config)
     outcome = run_job(Job(scenario, controller, seed))
     result = outcome.result
+    if trial_of is not None:
+        result["trial_of"] = trial_of      # as `bench run` marks a trial's result.json
     result_path = write_outcome(settings.out, scenario.slug, outcome)
     trace_path = result_path.parent / "trace.npz" if outcome.trace is not None else None
     video = _render_video(settings, result_path.parent, result["status"] == "passed", scenario)
@@ -578,13 +666,20 @@ class _SessionReporter:
     def __init__(self, config) -> None:
         self.config = config
         self.runs: list[dict] = []
+        self.trials: list[dict] = []
 
     def pytest_runtest_logreport(self, report) -> None:
         if report.when != "call":
             return
         entry = None
         for name, value in report.user_properties:
-            if name == "bench.scenario":
+            if name == "bench.trials":
+                import json
+
+                t = json.loads(value)
+                t["nodeid"], t["seq"] = report.nodeid, len(self.trials)
+                self.trials.append(t)
+            elif name == "bench.scenario":
                 entry = {"scenario": value, "status": None, "reason": None, "result": None, "baseline": None,
                          "nodeid": report.nodeid, "seq": len(self.runs)}
                 self.runs.append(entry)
@@ -608,7 +703,13 @@ class _SessionReporter:
             folder = (base / r["result"]).resolve().parent
             if out in folder.parents:
                 entries.append((folder.relative_to(out).as_posix(), r))
-        write_summary(settings.out, entries)
+        summary = write_summary(settings.out, entries)
+        if self.trials:
+            from bench.report.results import write_json
+
+            self.trials.sort(key=lambda t: (order.get(t["nodeid"], len(order)), t["seq"]))
+            summary["trials"] = [{k: v for k, v in t.items() if k not in ("nodeid", "seq")} for t in self.trials]
+            write_json(settings.out / "summary.json", summary)
 
     def pytest_terminal_summary(self, terminalreporter, exitstatus, config) -> None:
         settings = _settings(config)
@@ -630,5 +731,12 @@ class _SessionReporter:
                 b[word] = b.get(word, 0) + 1
             tr.write_line(f"baseline {_display_path(config, settings.baseline_path)}: "
                           + ", ".join(f"{n} {w}" for w, n in sorted(b.items())))
+        if self.trials:
+            from bench.cli.run import print_trials
+
+            buf = io.StringIO()
+            print_trials([{k: v for k, v in t.items() if k not in ("nodeid", "seq")} for t in self.trials], file=buf)
+            for line in buf.getvalue().rstrip().splitlines():
+                tr.write_line(line)
         for w in settings.warnings:
             tr.write_line(f"warning: {w}")

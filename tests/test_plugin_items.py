@@ -220,3 +220,61 @@ def test_glob_and_history_off_from_the_ini_file(pytester):
     pytester.runpytest("-q").assert_outcomes(failed=1)
     assert (pytester.path / "out" / "tight" / "result.json").is_file()
     assert not (pytester.path / "out" / "history.sqlite").exists()
+
+
+TRIALS = """
+extends: _base.yaml
+name: tri
+tags: [trials]
+trials: 6
+randomize:
+  payloads.crate.mass: [1.0, 40.0]
+criteria:
+  pass_rate_min: {rate}
+  height_error_max: 0.02
+"""
+
+
+def test_trials_scenario_is_one_item_judged_like_bench_run(project):
+    """`trials:` gives one item that runs every trial and decides on the Wilson bound, as `bench run` does."""
+    (project.path / "scen" / "tri.yaml").write_text(TRIALS.format(rate=0.5))
+    res = project.runpytest("--co", "-q", "-m", "trials")
+    assert [x for x in res.outlines if "::" in x] == ["scen/tri.yaml::tri"]
+
+    res = project.runpytest("-q", "-m", "trials", "--junitxml=junit.xml")
+    res.assert_outcomes(failed=1, deselected=4)
+    text = res.stdout.str()
+    assert "Traceback" not in text
+    # the same trials through the command line
+    assert bench_main(["run", str(project.path / "scen" / "tri.yaml"), "--controller", "joint-pd", "--workers", "1",
+                       "--out", str(project.path / "cli"), "--no-plots", "--no-history"]) == 1
+    cli = json.loads((project.path / "cli" / "summary.json").read_text())
+    plug = json.loads((project.path / "out" / "summary.json").read_text())
+    (ct,), (pt,) = cli["trials"], plug["trials"]
+    assert ct["trials"] == 6 and 0 < ct["passed"] < 6 and ct["verdict"] == "failed"   # the fixture is a real mix
+    for key in ("trials", "passed", "rate", "interval", "required", "verdict", "failing", "trials_needed"):
+        assert pt[key] == ct[key], key
+    assert [r["result"] for r in plug["results"]] == [f"tri.trial-{k}/result.json" for k in range(6)]
+    for k in range(6):
+        a = json.loads((project.path / "out" / f"tri.trial-{k}" / "result.json").read_text())
+        b = json.loads((project.path / "cli" / f"tri.trial-{k}" / "result.json").read_text())
+        assert a["status"] == b["status"] and a["seed"] == b["seed"] and a["trial_of"] == b["trial_of"] == "tri"
+        assert a["trace_sha256"] == b["trace_sha256"]    # the same episode, bit for bit
+    # The failure report: the trials table, each failing trial's criteria, how to re-run one alone.
+    lo, hi = ct["interval"]
+    row = next(line for line in res.outlines if line.startswith("tri ") and "failed" in line)
+    assert f"{ct['passed']}/6" in row and f"[{lo:.2f}, {hi:.2f}]" in row
+    first = ct["failing"][0]
+    assert f"{first}: failed: height_error_max" in text
+    assert f"re-run one trial alone: bench run scen/tri.yaml --only '{first}'" in text
+    case = next(c for c in ET.parse(project.path / "junit.xml").iter("testcase") if c.get("name") == "tri")
+    props = [(p.get("name"), p.get("value")) for p in case.iter("property")]
+    d = dict(props)
+    assert d["bench.trials.verdict"] == "failed" and d["bench.trials.passed"] == f"{ct['passed']}/6"
+    assert float(d["bench.trials.interval_low"]) == pytest.approx(lo)
+    assert [v for n, v in props if n == "bench.scenario"] == [f"tri[trial={k}]" for k in range(6)]
+
+    # A lower required rate that the same trials meet: the item passes.
+    (project.path / "scen" / "tri.yaml").write_text(TRIALS.format(rate=round(lo - 0.05, 2)))
+    res = project.runpytest("-q", "-m", "trials")
+    res.assert_outcomes(passed=1, deselected=4)

@@ -77,6 +77,8 @@ def test_every_primitive_appears_in_the_suite(suite):
     # Composition is used too: a file that extends another, and matrices that expand into variants.
     assert any(sc.variant for sc in suite)
     assert any("extends" in load_yaml(p).data for p in SCENARIOS.rglob("*.yaml"))
+    # ...and randomised trials judged on a pass rate
+    assert any(sc.trials > 1 and sc.randomize and sc.criteria.get("pass_rate_min") for sc in suite)
 
 
 def test_the_orchard_sprayer_demo_has_what_it_promises(suite):
