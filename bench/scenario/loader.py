@@ -63,11 +63,27 @@ def named_file_problems(scenario: Scenario, roots: list[Path]) -> list[ScenarioE
     except ScenarioErrors as e:
         return list(e)
     mjcf = doc.data.get("mjcf")
-    if isinstance(mjcf, str) and mjcf and not _inside((resolved.parent / mjcf).resolve(), roots):
+    if not (isinstance(mjcf, str) and mjcf):
+        return []
+    if not _inside((resolved.parent / mjcf).resolve(), roots):
         loc = doc.locs.value(("mjcf",))
         return [ScenarioError(loc.file, loc.line, loc.col, "mjcf", f"MJCF {mjcf!r} is outside the allowed folders",
                               _OUTSIDE_HINT)]
-    return []
+    return mjcf_file_problems(Path(manifest).parent / mjcf, roots)
+
+
+def mjcf_file_problems(mjcf: Path, roots: list[Path]) -> list[ScenarioError]:
+    """The files an MJCF names (includes, meshes, textures, heightfields, attached models) stay inside `roots`."""
+    from bench.robot.mjcf_files import places_to_check, scan_mjcf
+
+    refs, problems = scan_mjcf(mjcf)
+    out = [ScenarioError(p.file, p.line, p.col, p.field, p.message) for p in problems]
+    for ref in refs:
+        if not all(_inside(place, roots) for place in places_to_check(ref)):
+            out.append(ScenarioError(ref.file, ref.line, ref.col, ref.field,
+                                     f"file {ref.value!r} named by the MJCF is outside the allowed folders",
+                                     _OUTSIDE_HINT))
+    return out
 
 
 def _randomized_robot_problems(scenario: Scenario, roots: list[Path]) -> list[ScenarioError]:

@@ -1,0 +1,191 @@
+"""The files an MJCF file names, found before MuJoCo reads it.
+
+A robot's MJCF can pull in other files: ``<include file=...>`` (other MJCF),
+``<mesh>``, ``<hfield>``, ``<skin>`` and ``<texture>`` files (under
+``<compiler meshdir/texturedir/assetdir>``), and whole models attached with
+``<asset><model file=...>``. A scenario may only reach files inside the allowed
+roots, so these are listed here and checked with the rest
+(``bench.scenario.loader.named_file_problems``).
+
+The XML is read with ``xml.parsers.expat`` directly, so that every reference
+keeps its line and column. A document type declaration is refused outright:
+MJCF has no use for one, and entity declarations are the way to expand a small
+file into a huge one or to read another file. Limits: each file at most
+``MAX_BYTES``, includes at most ``MAX_DEPTH`` deep and ``MAX_FILES`` files in all.
+
+Where a relative path is looked for, as MuJoCo 4.0.0 does (checked by hand: an
+include is found next to the including file and also next to the main file;
+asset files under the compiler's folder, which is relative to the main file):
+each place where the file exists must be inside the roots, and so must the
+first place when it exists nowhere (MuJoCo then reports the missing file).
+"""
+
+from __future__ import annotations
+
+import xml.parsers.expat
+from dataclasses import dataclass
+from pathlib import Path
+
+MAX_BYTES = 64 << 20   # 64 MiB: the bundled MJCF is 10 KiB; mesh-heavy robots stay far below
+MAX_DEPTH = 16
+MAX_FILES = 256
+
+#: Element -> the attributes that name a file.
+FILE_ATTRS: dict[str, tuple[str, ...]] = {
+    "include": ("file",),
+    "mesh": ("file",),
+    "hfield": ("file",),
+    "skin": ("file",),
+    "texture": ("file", "fileright", "fileleft", "fileup", "filedown", "filefront", "fileback"),
+    "model": ("file",),
+}
+#: Element -> the compiler attribute of its folder (``assetdir`` applies when that one is not set).
+DIR_ATTR = {"mesh": "meshdir", "hfield": "meshdir", "skin": "meshdir", "texture": "texturedir"}
+
+
+@dataclass(frozen=True)
+class FileRef:
+    """One file an MJCF names: where it is written, and where MuJoCo would look for it."""
+
+    file: str            # the MJCF file it is written in
+    line: int
+    col: int
+    field: str           # "include.file", "mesh.file", ...
+    value: str
+    candidates: tuple[Path, ...]
+
+
+@dataclass(frozen=True)
+class MjcfProblem:
+    """The MJCF cannot be scanned (not XML, a DOCTYPE, over a limit); located like a scenario error."""
+
+    file: str
+    line: int
+    col: int
+    field: str
+    message: str
+
+
+class _Scan:
+    def __init__(self, main: Path) -> None:
+        self.main_dir = main.resolve().parent
+        self.refs: list[FileRef] = []
+        self.problems: list[MjcfProblem] = []
+        self.files = 0
+        self.compiler: dict[str, str] = {}
+        self.pending: list[tuple[FileRef, str]] = []
+
+    def scan(self, path: Path, shown: str, depth: int) -> None:
+        self.files += 1
+        if self.files > MAX_FILES:
+            self.problems.append(MjcfProblem(shown, 1, 1, "include", f"more than {MAX_FILES} MJCF files included"))
+            return
+        try:
+            size = path.stat().st_size
+            if size > MAX_BYTES:
+                self.problems.append(MjcfProblem(shown, 1, 1, "mjcf", f"MJCF file of {size} bytes is over the "
+                                                 f"limit of {MAX_BYTES} bytes"))
+                return
+            data = path.read_bytes()
+        except OSError:
+            return      # missing or unreadable: the robot loader reports it with MuJoCo's message
+        parser = xml.parsers.expat.ParserCreate()
+        includes: list[FileRef] = []
+        here = path.resolve().parent
+
+        def doctype(*_args) -> None:
+            raise _Refused("a DOCTYPE declaration (MJCF does not use one; entities are not allowed)")
+
+        def start(tag: str, attrs: dict) -> None:
+            line, col = parser.CurrentLineNumber, parser.CurrentColumnNumber + 1
+            if tag == "compiler":
+                for key in ("meshdir", "texturedir", "assetdir"):
+                    if key in attrs:
+                        self.compiler[key] = attrs[key]
+            for attr in FILE_ATTRS.get(tag, ()):
+                value = attrs.get(attr)
+                if value is None or not value.strip():
+                    continue
+                ref = FileRef(shown, line, col, f"{tag}.{attr}", value, ())
+                if tag == "include":
+                    p = Path(value)
+                    cands = (p,) if p.is_absolute() else (here / p, self.main_dir / p)
+                    ref = FileRef(shown, line, col, ref.field, value, _unique(cands))
+                    includes.append(ref)
+                    self.refs.append(ref)
+                else:
+                    self.pending.append((ref, tag))   # its folder depends on <compiler>, wherever it is
+
+        parser.StartDoctypeDeclHandler = doctype
+        parser.EntityDeclHandler = doctype
+        parser.StartElementHandler = start
+        try:
+            parser.Parse(data, True)
+        except _Refused as exc:
+            self.problems.append(MjcfProblem(shown, parser.CurrentLineNumber, parser.CurrentColumnNumber + 1,
+                                             "mjcf", f"MJCF has {exc}"))
+            return
+        except xml.parsers.expat.ExpatError as exc:
+            self.problems.append(MjcfProblem(shown, exc.lineno, exc.offset + 1, "mjcf",
+                                             f"MJCF is not well-formed XML: {xml.parsers.expat.errors.messages[exc.code]}"
+                                             if exc.code in xml.parsers.expat.errors.messages else
+                                             f"MJCF is not well-formed XML: {exc}"))
+            return
+        for ref in includes:
+            if depth + 1 > MAX_DEPTH:
+                self.problems.append(MjcfProblem(ref.file, ref.line, ref.col, ref.field,
+                                                 f"includes nested more than {MAX_DEPTH} deep"))
+                continue
+            target = next((c for c in ref.candidates if c.is_file()), None)
+            if target is not None:
+                self.scan(target, _shown(target, shown, path), depth + 1)
+
+    def finish(self) -> None:
+        for ref, tag in self.pending:
+            folder = self.compiler.get(DIR_ATTR.get(tag, ""), self.compiler.get("assetdir", "")) if tag in DIR_ATTR \
+                else ""
+            p = Path(ref.value)
+            if p.is_absolute():
+                cands: tuple[Path, ...] = (p,)
+            else:
+                base = Path(folder) if Path(folder).is_absolute() else self.main_dir / folder
+                cands = (base / p,)
+            self.refs.append(FileRef(ref.file, ref.line, ref.col, ref.field, ref.value, _unique(cands)))
+        self.pending = []
+
+
+class _Refused(Exception):
+    pass
+
+
+def _unique(paths) -> tuple[Path, ...]:
+    out: list[Path] = []
+    for p in paths:
+        if p not in out:
+            out.append(p)
+    return tuple(out)
+
+
+def _shown(target: Path, parent_shown: str, parent: Path) -> str:
+    """How an included file is named in messages: next to its parent's shown name when possible."""
+    try:
+        rel = target.resolve().relative_to(parent.resolve().parent)
+    except ValueError:
+        return str(target)
+    return str(Path(parent_shown).parent / rel)
+
+
+def scan_mjcf(path: str | Path, shown: str | None = None) -> tuple[list[FileRef], list[MjcfProblem]]:
+    """Every file reference in the MJCF at ``path`` and the files it includes, and any problem found."""
+    p = Path(path)
+    s = _Scan(p)
+    s.scan(p, shown or str(path), 0)
+    s.finish()
+    return s.refs, s.problems
+
+
+def places_to_check(ref: FileRef) -> list[Path]:
+    """The resolved places that must be inside the roots: every one that exists, else the first."""
+    existing = [c for c in ref.candidates if c.exists()]
+    chosen = existing or list(ref.candidates[:1])
+    return [c.resolve() for c in chosen]
