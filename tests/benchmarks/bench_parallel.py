@@ -22,7 +22,7 @@ are timed once. On the bundled suite (51 episodes, 526 s simulated) one repeat
 takes about 15 minutes on 2 cores.
 
     python tests/benchmarks/bench_parallel.py [--repeats 1] [--controller force-qp-l1] [--workers 2]
-                                              [--suite scenarios/basics] [--no-cli]
+                                              [--suite basics] [--no-cli]
 """
 
 from __future__ import annotations
