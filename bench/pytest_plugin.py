@@ -333,12 +333,8 @@ class TrialsItem(ScenarioItem):
             raise BenchFailure(self.clash)
         settings = _settings(self.config)
         episodes, _, groups = trials_mod.plan([self.scenario])
-        (group,) = groups
         runs = [execute(self.config, self, ep, settings.controller, trial_of=self.scenario.id) for ep in episodes]
-        summary = {"scenario": group.scenario, "source": _display_path(self.config, Path(group.source)),
-                   "declared_trials": group.declared}
-        summary.update(trials_mod.judge([r.result for r in runs], group.required))
-        summary["trials_needed"] = trials_mod.min_trials(group.required)
+        (summary,) = trials_mod.group_summaries(groups, [r.result for r in runs])
         _attach_trials(self, summary)
         problems = []
         if summary["verdict"] != "passed":
@@ -666,7 +662,7 @@ class _SessionReporter:
     def __init__(self, config) -> None:
         self.config = config
         self.runs: list[dict] = []
-        self.trials: list[dict] = []
+        self.trials: list[tuple[str, int, dict]] = []   # (nodeid, seq, summary.json trials entry)
 
     def pytest_runtest_logreport(self, report) -> None:
         if report.when != "call":
@@ -676,9 +672,7 @@ class _SessionReporter:
             if name == "bench.trials":
                 import json
 
-                t = json.loads(value)
-                t["nodeid"], t["seq"] = report.nodeid, len(self.trials)
-                self.trials.append(t)
+                self.trials.append((report.nodeid, len(self.trials), json.loads(value)))
             elif name == "bench.scenario":
                 entry = {"scenario": value, "status": None, "reason": None, "result": None, "baseline": None,
                          "nodeid": report.nodeid, "seq": len(self.runs)}
@@ -703,13 +697,8 @@ class _SessionReporter:
             folder = (base / r["result"]).resolve().parent
             if out in folder.parents:
                 entries.append((folder.relative_to(out).as_posix(), r))
-        summary = write_summary(settings.out, entries)
-        if self.trials:
-            from bench.report.results import write_json
-
-            self.trials.sort(key=lambda t: (order.get(t["nodeid"], len(order)), t["seq"]))
-            summary["trials"] = [{k: v for k, v in t.items() if k not in ("nodeid", "seq")} for t in self.trials]
-            write_json(settings.out / "summary.json", summary)
+        self.trials.sort(key=lambda t: (order.get(t[0], len(order)), t[1]))
+        write_summary(settings.out, entries, [t for _, _, t in self.trials])
 
     def pytest_terminal_summary(self, terminalreporter, exitstatus, config) -> None:
         settings = _settings(config)
@@ -735,7 +724,7 @@ class _SessionReporter:
             from bench.cli.run import print_trials
 
             buf = io.StringIO()
-            print_trials([{k: v for k, v in t.items() if k not in ("nodeid", "seq")} for t in self.trials], file=buf)
+            print_trials([t for _, _, t in self.trials], file=buf)
             for line in buf.getvalue().rstrip().splitlines():
                 tr.write_line(line)
         for w in settings.warnings:

@@ -101,7 +101,7 @@ def run(args) -> int:
     from bench.execute.outcomes import error_outcome
     from bench.execute.progress import Progress
     from bench.execute.schedule import longest_first
-    from bench.report.results import write_json, write_outcome, write_summary
+    from bench.report.results import write_outcome, write_summary
     from bench.sim.episode import EpisodeLimits
 
     if getattr(args, "video", "none") != "none":
@@ -145,13 +145,10 @@ def run(args) -> int:
         progress.close()
         executor.close()
     entries = [(sc.slug, r) for sc, r in zip(episodes, results)]
-    summary = write_summary(out, entries)
+    trial_summaries = trials_mod.group_summaries(groups, results)
+    summary = write_summary(out, entries, trial_summaries)
     if not args.no_history:
         _record_history(args, out, [results[i] for i in todo])   # resumed results are in it already
-    trial_summaries = trials_mod.group_summaries(groups, results)
-    if trial_summaries:
-        summary["trials"] = trial_summaries
-        write_json(out / "summary.json", summary)
     rows = [[sc.id, r["status"], deciding_text(r), f"{r['realtime_factor']:.1f}x"] for sc, r in zip(episodes, results)]
     print_table(rows, ["scenario", "status", "deciding criterion (value / limit)", "realtime"])
     if trial_summaries:

@@ -69,8 +69,8 @@ def write_outcome(out_dir: Path, slug: str, outcome) -> Path:
     return d / "result.json"
 
 
-def write_summary(out_dir: Path, entries: list[tuple[str, dict]]) -> dict:
-    """``entries``: (slug, result) pairs in run order."""
+def write_summary(out_dir: Path, entries: list[tuple[str, dict]], trials: list[dict] | None = None) -> dict:
+    """``entries``: (slug, result) pairs in run order; ``trials``: one entry per trial scenario, if any."""
     results = [{"scenario": r["scenario"], "status": r["status"], "reason": r["reason"],
                 "result": f"{slug}/result.json"} for slug, r in entries]
     summary = {
@@ -80,6 +80,8 @@ def write_summary(out_dir: Path, entries: list[tuple[str, dict]]) -> dict:
         "errors": sum(r["status"] in ("error", "timeout") for r in results),
         "results": results,
     }
+    if trials:
+        summary["trials"] = trials
     write_json(Path(out_dir) / "summary.json", summary)
     return summary
 

@@ -74,7 +74,7 @@ def named_file_problems(scenario: Scenario, roots: list[Path]) -> list[ScenarioE
 
 def mjcf_file_problems(mjcf: Path, roots: list[Path]) -> list[ScenarioError]:
     """The files an MJCF names (includes, meshes, textures, heightfields, attached models) stay inside `roots`."""
-    from bench.robot.mjcf_files import places_to_check, scan_mjcf
+    from bench.scenario.mjcf_files import places_to_check, scan_mjcf
 
     refs, problems = scan_mjcf(mjcf)
     out = [ScenarioError(p.file, p.line, p.col, p.field, p.message) for p in problems]

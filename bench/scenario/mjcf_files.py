@@ -5,7 +5,8 @@ A robot's MJCF can pull in other files: ``<include file=...>`` (other MJCF),
 ``<compiler meshdir/texturedir/assetdir>``), and whole models attached with
 ``<asset><model file=...>``. A scenario may only reach files inside the allowed
 roots, so these are listed here and checked with the rest
-(``bench.scenario.loader.named_file_problems``).
+(``bench.scenario.loader.named_file_problems``). Part of the scenario stage: it
+reads XML only and needs neither MuJoCo nor the robot loader.
 
 The XML is read with ``xml.parsers.expat`` directly, so that every reference
 keeps its line and column. A document type declaration is refused outright:
@@ -73,7 +74,7 @@ class _Scan:
         self.problems: list[MjcfProblem] = []
         self.files = 0
         self.compiler: dict[str, str] = {}
-        self.pending: list[tuple[FileRef, str]] = []
+        self.assets: list[tuple[str, int, int, str, str, str]] = []   # (file, line, col, tag, attr, value)
 
     def scan(self, path: Path, shown: str, depth: int) -> None:
         self.files += 1
@@ -106,15 +107,14 @@ class _Scan:
                 value = attrs.get(attr)
                 if value is None or not value.strip():
                     continue
-                ref = FileRef(shown, line, col, f"{tag}.{attr}", value, ())
                 if tag == "include":
-                    p = Path(value)
-                    cands = (p,) if p.is_absolute() else (here / p, self.main_dir / p)
-                    ref = FileRef(shown, line, col, ref.field, value, _unique(cands))
+                    # next to this file, then next to the main file (one place when absolute)
+                    cands = tuple(dict.fromkeys((here / value, self.main_dir / value)))
+                    ref = FileRef(shown, line, col, f"{tag}.{attr}", value, cands)
                     includes.append(ref)
                     self.refs.append(ref)
-                else:
-                    self.pending.append((ref, tag))   # its folder depends on <compiler>, wherever it is
+                else:   # its folder depends on <compiler>, wherever that is: resolved in finish()
+                    self.assets.append((shown, line, col, tag, attr, value))
 
         parser.StartDoctypeDeclHandler = doctype
         parser.EntityDeclHandler = doctype
@@ -127,9 +127,7 @@ class _Scan:
             return
         except xml.parsers.expat.ExpatError as exc:
             self.problems.append(MjcfProblem(shown, exc.lineno, exc.offset + 1, "mjcf",
-                                             f"MJCF is not well-formed XML: {xml.parsers.expat.errors.messages[exc.code]}"
-                                             if exc.code in xml.parsers.expat.errors.messages else
-                                             f"MJCF is not well-formed XML: {exc}"))
+                                             f"MJCF is not well-formed XML: {xml.parsers.expat.ErrorString(exc.code)}"))
             return
         for ref in includes:
             if depth + 1 > MAX_DEPTH:
@@ -141,29 +139,16 @@ class _Scan:
                 self.scan(target, _shown(target, shown, path), depth + 1)
 
     def finish(self) -> None:
-        for ref, tag in self.pending:
-            folder = self.compiler.get(DIR_ATTR.get(tag, ""), self.compiler.get("assetdir", "")) if tag in DIR_ATTR \
-                else ""
-            p = Path(ref.value)
-            if p.is_absolute():
-                cands: tuple[Path, ...] = (p,)
-            else:
-                base = Path(folder) if Path(folder).is_absolute() else self.main_dir / folder
-                cands = (base / p,)
-            self.refs.append(FileRef(ref.file, ref.line, ref.col, ref.field, ref.value, _unique(cands)))
-        self.pending = []
+        for file, line, col, tag, attr, value in self.assets:
+            folder = self.compiler.get(DIR_ATTR[tag], self.compiler.get("assetdir", "")) if tag in DIR_ATTR else ""
+            # pathlib: joining an absolute path replaces what is before it, as MuJoCo does
+            place = self.main_dir / folder / value
+            self.refs.append(FileRef(file, line, col, f"{tag}.{attr}", value, (place,)))
+        self.assets = []
 
 
 class _Refused(Exception):
     pass
-
-
-def _unique(paths) -> tuple[Path, ...]:
-    out: list[Path] = []
-    for p in paths:
-        if p not in out:
-            out.append(p)
-    return tuple(out)
 
 
 def _shown(target: Path, parent_shown: str, parent: Path) -> str:
