@@ -228,7 +228,7 @@ def resume_lines(plan: Plan, resumed: Resumed, out: Path, shown: int = 8) -> lis
     lines = [head]
     items = sorted(why.items())
     for i, reason in items[:shown]:
-        lines.append(f"resume: running {plan.episodes[i].id} again: {reason}")
+        lines.append(f"  {plan.episodes[i].id}: run again: {reason}")
     if len(items) > shown:
-        lines.append(f"resume: ... and {len(items) - shown} more run again")
+        lines.append(f"  ... and {len(items) - shown} more run again")
     return lines
