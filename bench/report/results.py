@@ -43,11 +43,28 @@ def write_json(path: Path, obj) -> None:
     write_atomic(path, (json.dumps(_clean(obj), indent=2, allow_nan=False) + "\n").encode())
 
 
+class ResultFolderError(ValueError):
+    """A scenario's results folder cannot be written safely; the message says which and why."""
+
+
 def scenario_dir(out_dir: Path, slug: str) -> Path:
-    d = (Path(out_dir) / slug)
-    # The slug is restricted to [A-Za-z0-9._-] by the scenario layer; refuse anything that escapes.
-    if d.resolve().parent != Path(out_dir).resolve():
-        raise ValueError(f"scenario id {slug!r} would write outside {out_dir}")
+    """``<out_dir>/<slug>``; raises :class:`ResultFolderError` when writing there would leave ``out_dir``.
+
+    The slug is restricted to ``[A-Za-z0-9._-]`` by the scenario layer; anything else is refused, and so
+    is a results folder that is a symbolic link (this run's files would land wherever it points).
+    """
+    if not slug or slug in (".", "..") or "/" in slug or "\\" in slug or "\0" in slug:
+        raise ResultFolderError(f"scenario id {slug!r} would write outside {out_dir}")
+    d = Path(out_dir) / slug
+    if d.is_symlink():
+        try:
+            target = os.readlink(d)
+        except OSError:
+            target = "?"
+        raise ResultFolderError(f"results folder {d} is a symbolic link (to {target}); remove it or choose "
+                                f"another results folder")
+    if d.exists() and not d.is_dir():
+        raise ResultFolderError(f"results folder {d} exists and is not a folder")
     return d
 
 

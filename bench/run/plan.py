@@ -157,21 +157,17 @@ def check_out_folders(plan: Plan, out: Path) -> None:
     A results folder that is a symbolic link would send this run's files somewhere else (and a
     later ``--resume`` would trust whatever is there): it is refused before anything runs.
     """
-    out = Path(out)
+    from bench.report.results import ResultFolderError, scenario_dir
+
     bad = []
     for e in plan.episodes:
-        d = out / e.slug
-        if d.is_symlink():
-            try:
-                target = str(d.readlink())
-            except OSError:
-                target = "?"
-            bad.append(f"{d} is a symbolic link (to {target})")
-        elif d.exists() and not d.is_dir():
-            bad.append(f"{d} is not a folder")
+        try:
+            scenario_dir(Path(out), e.slug)
+        except ResultFolderError as exc:
+            bad.append(str(exc))
     if bad:
         shown = "; ".join(bad[:3]) + (f"; and {len(bad) - 3} more" if len(bad) > 3 else "")
-        raise InvalidInput(f"results folder cannot be written: {shown}; remove it or choose another --out")
+        raise InvalidInput(f"results folder cannot be written: {shown}")
 
 
 # --------------------------------------------------------------------------- resume
