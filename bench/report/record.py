@@ -16,7 +16,7 @@ read them).
 
 from __future__ import annotations
 
-import math
+import numbers
 from dataclasses import dataclass, field, fields, replace
 from typing import Any, Mapping
 
@@ -39,7 +39,8 @@ def _num(x: Any) -> float | None:
 
 
 def _is_num(x: Any) -> bool:
-    return isinstance(x, (int, float)) and not isinstance(x, bool)
+    # numbers.Real: numpy scalars count too (a metric computed with numpy may be one before it is written)
+    return isinstance(x, numbers.Real) and not isinstance(x, bool)
 
 
 def _need(data: Mapping, key: str, kind: str, where: str = "") -> Any:
@@ -50,7 +51,7 @@ def _need(data: Mapping, key: str, kind: str, where: str = "") -> Any:
     ok = {
         "str": isinstance(value, str),
         "str?": value is None or isinstance(value, str),
-        "int": isinstance(value, int) and not isinstance(value, bool),
+        "int": isinstance(value, numbers.Integral) and not isinstance(value, bool),
         "num": _is_num(value),
         "num?": value is None or _is_num(value),
         "bool": isinstance(value, bool),
@@ -287,7 +288,7 @@ class RunRecord:
             scenario=_need(data, "scenario", "str"),
             source=_need(data, "source", "str"),
             controller=_need(data, "controller", "str"),
-            seed=_need(data, "seed", "int"),
+            seed=int(_need(data, "seed", "int")),
             status=status,
             passed=_need(data, "passed", "bool"),
             reason=_need(data, "reason", "str?"),
@@ -320,6 +321,3 @@ def as_record(result: "RunRecord | Mapping") -> RunRecord:
     """A record from either a record or a result.json mapping (readers accept both)."""
     return result if isinstance(result, RunRecord) else RunRecord.from_json(result)
 
-
-def finite_or_none(x: float | None) -> float | None:
-    return None if x is None or not math.isfinite(x) else x
