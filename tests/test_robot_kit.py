@@ -150,3 +150,35 @@ def test_kinematic_height_is_forward_kinematics_of_the_nominal_pose():
     assert kinematic_height(robot) == pytest.approx(expected, abs=1e-9)
     rows = {r.name: r for r in measure(robot)}
     assert rows["total mass"].value == pytest.approx(12.0)
+
+
+def test_quad30_manifest_is_the_draft_unchanged():
+    """The second bundled robot's manifest is exactly what `bench robot init` drafts (comments aside)."""
+    folder = REPO / "models/quad30"
+    committed = yaml.safe_load((folder / "manifest.yaml").read_text())
+    drafted = yaml.safe_load(manifest_text(draft_manifest(folder / "quad30.xml"), "quad30.xml"))
+    assert drafted == committed
+    robot = NominalRobot(load_manifest(folder / "manifest.yaml"))
+    assert robot.mass_kg == pytest.approx(30.0)
+    assert robot.mass_kg > 2.4 * NominalRobot(load_manifest(REPO / "models/quad12/manifest.yaml")).mass_kg
+
+
+def test_adaptive_stack_holds_quad30_with_half_its_mass_on_its_back(tmp_path):
+    """No retuning: the reference stack takes its model from the manifest; 15 kg crate, 3 s stand."""
+    from bench.controllers import registry
+    from bench.scenario import load_scenarios
+    from bench.scoring.verdict import score
+    from bench.sim.episode import run_episode
+    from bench.world.build import build_world
+
+    p = tmp_path / "s.yaml"
+    p.write_text("name: q30-stand-half\nrobot: quad30\nduration: 3.0\nseed: 2\n"
+                 "payloads:\n  - {name: crate, mass: 15.0, size: [0.30, 0.22, 0.12], offset: [-0.10, 0.0, 0.13]}\n"
+                 "criteria: {no_fall: true, height_error_max: 0.05, pitch_error_max_deg: 5}\n")
+    sc = load_scenarios([str(p)])[0]
+    man = load_manifest(REPO / "models/quad30/manifest.yaml")
+    _, ctrl = registry.make("force-qp-l1")
+    ep = run_episode(build_world(sc, man), sc, ctrl, NominalRobot(man), seed=2)
+    v = score(ep.trace, dict(sc.criteria), episode_status=ep.status, episode_reason=ep.reason)
+    assert v.status == "passed", v.reason
+    assert ep.trace["total_mass"][-1] == pytest.approx(45.0)
