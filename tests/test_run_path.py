@@ -106,6 +106,10 @@ def test_check_run_and_plugin_give_the_same_errors_and_verdicts(files, capsys):
             else:
                 assert a[key] == b[key], (name, key)
     assert by_run["good"]["status"] == "passed" and by_run["strict"]["status"] == "failed"
+    # both write summary.md beside summary.json, listing the failure with its deciding criterion
+    for out in ("run-out", "plug-out"):
+        md = (pytester.path / out / "summary.md").read_text()
+        assert "`strict`" in md and by_run["strict"]["deciding"]["name"] in md and "`good`" not in md
 
 
 def test_unknown_controller_is_exit_2_with_did_you_mean(tmp_path, capsys):

@@ -130,6 +130,7 @@ def run(args) -> int:
         print()
         print_trials(trial_summaries)
     _media(args, out, plan, results)   # plots and videos; the count line below stays the last line
+    run_sinks.write_run_markdown(out, plan, results, summary, controller=plan.controller_name)
     print(f"results in {out}/")
     line = f"{summary['passed']} passed, {summary['failed']} failed"
     if summary["errors"]:

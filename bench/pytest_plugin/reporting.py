@@ -54,7 +54,8 @@ class SessionReporter:
             if out in folder.parents:
                 entries.append((folder.relative_to(out).as_posix(), r))
         self.trials.sort(key=lambda t: (order.get(t[0], len(order)), t[1]))
-        write_summary(settings.out, entries, [t for _, _, t in self.trials])
+        summary = write_summary(settings.out, entries, [t for _, _, t in self.trials])
+        _write_markdown(settings, summary)
 
     def pytest_terminal_summary(self, terminalreporter, exitstatus, config) -> None:
         settings = settings_of(config)
@@ -85,3 +86,16 @@ class SessionReporter:
                 tr.write_line(line)
         for w in settings.warnings:
             tr.write_line(f"warning: {w}")
+
+
+def _write_markdown(settings, summary: dict) -> None:
+    """``summary.md`` beside ``summary.json``, as ``bench run`` writes it; never fails the session."""
+    import json
+
+    from bench.report.markdown import write_summary_markdown
+
+    try:
+        results = [json.loads((settings.out / e["result"]).read_text(encoding="utf-8")) for e in summary["results"]]
+        write_summary_markdown(settings.out, summary, results, controller=settings.controller)
+    except Exception as exc:  # noqa: BLE001 - summary.json holds the verdicts; the page is a convenience
+        settings.warnings.append(f"summary.md not written: {type(exc).__name__}: {exc}")

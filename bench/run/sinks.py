@@ -172,3 +172,16 @@ def media_after_run(out: Path, plan, results: dict[int, dict], *, video: str = "
                   video_dir=video_dir, plots=plots, opts=opts, file=file)
     except Exception as exc:  # noqa: BLE001 - the results are written; media are extras
         print(f"plots/video: skipped: {type(exc).__name__}: {exc}", file=file or sys.stdout)
+
+
+def write_run_markdown(out: Path, plan, results: dict[int, dict], summary: dict, *, controller=None,
+                       comparison=None) -> Path | None:
+    """``summary.md`` beside ``summary.json`` (after the plots, which it links); never fails the run."""
+    from bench.report.markdown import write_summary_markdown
+
+    try:
+        return write_summary_markdown(out, summary, [results[e.index] for e in plan.episodes],
+                                      controller=controller, comparison=comparison)
+    except Exception as exc:  # noqa: BLE001 - the verdicts are in summary.json; the page is a convenience
+        print(f"summary.md: not written: {type(exc).__name__}: {exc}", file=sys.stderr)
+        return None
