@@ -101,7 +101,12 @@ def run(args) -> int:
     results: dict[int, dict] = {}
     todo = [e.index for e in plan.episodes]
     try:
-        out.mkdir(parents=True, exist_ok=True)
+        try:
+            out.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            from bench.run.errors import InvalidInput
+
+            raise InvalidInput(f"--out {out}: cannot create the results folder: {exc.strerror or exc}") from None
         if getattr(args, "resume", False):
             resumed = resume(plan, out)
             results.update(resumed.results)
