@@ -17,7 +17,7 @@ import time
 from pathlib import Path
 
 from bench.cli.common import load_or_report
-from bench.cli.run import add_execution_options
+from bench.cli.run import add_execution_options, executor_options
 from bench.run.plan import DEFAULT_CONTROLLER
 
 ORDER = 15
@@ -106,7 +106,7 @@ def run(args) -> int:
         return 2
     sc = _pick(scenarios, args.only, args.scenario)
     check_controller(args.controller)          # invalid input: exit 2 before anything runs
-    executor = open_executor(args.workers, args.cluster)
+    executor = open_executor(args.workers, args.cluster, **executor_options(args))
     out = Path(args.out)
     t0 = time.perf_counter()
     try:

@@ -97,7 +97,7 @@ def run(args) -> int:
     out = Path(args.out)
     check_out_folders(plan, out)
     executor = run_exec.open_executor(getattr(args, "workers", None), getattr(args, "cluster", None),
-                                      **_executor_options(args))
+                                      **executor_options(args))
     results: dict[int, dict] = {}
     todo = [e.index for e in plan.episodes]
     try:
@@ -149,9 +149,9 @@ def run(args) -> int:
     return 0 if plain_ok and groups_ok else 1
 
 
-def _executor_options(args) -> dict:
-    """Options of the execution back end beyond --workers/--cluster, when this bench has them."""
-    return {}
+def executor_options(args) -> dict:
+    """Options of the execution back end beyond --workers/--cluster (``--in-process``), only when given."""
+    return {"in_process": True} if getattr(args, "in_process", False) else {}
 
 
 def _media(args, out: Path, plan, results) -> None:
