@@ -271,6 +271,11 @@ class History:
                 if version < SCHEMA_VERSION:
                     con.execute("BEGIN IMMEDIATE")
                     try:
+                        tables = {row[0] for row in con.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+                        if tables and not tables & {"runs", "results", "metrics"}:
+                            # someone else's SQLite file: add nothing to it
+                            raise HistoryError(f"{self.path}: not a bench history database (it holds other "
+                                               f"tables: {', '.join(sorted(tables)[:5])}); give another path")
                         for stmt in filter(None, (s.strip() for s in _SCHEMA.split(";"))):
                             con.execute(stmt)
                         # schema 1 -> 2: the columns are added to a database made before them
