@@ -13,7 +13,7 @@ from types import SimpleNamespace
 
 import pytest
 
-from bench.run.fingerprint import PARTS, Fingerprint, controller_identity, robot_part, verdict_fingerprint
+from bench.run.fingerprint import PARTS, Fingerprint, controller_identity, robot_part, stale_reason, verdict_fingerprint
 from bench.scenario.loader import load_file
 from bench.sim.episode import EpisodeLimits
 
@@ -184,3 +184,16 @@ def test_digests_agree_across_processes(world):
                          cwd=world, timeout=120)
     there = json.loads(out.stdout.strip().splitlines()[-1])
     assert there == {"digest": here.digest, "parts": here.parts}
+
+
+def test_stale_reason_says_which_inputs_differ(world):
+    before = fingerprint(world)
+    result = {"scenario": "fp-stand", **before.result_fields()}
+    assert stale_reason(result, before) == ""
+    assert stale_reason({"scenario": "fp-stand"}, before) == ("result.json has no verdict fingerprint "
+                                                              "(made by an older bench)")
+    edit(world / "robot" / "extra.xml", 'data="1"', 'data="7"')
+    after = fingerprint(world, limits=EpisodeLimits(tick_timeout_s=1.0, episode_timeout_s=600.0))
+    assert stale_reason(result, after) == ("result.json was made with another robot model and limits "
+                                           "(its verdict fingerprint differs)")
+    assert json.loads(json.dumps(result)) == result      # the fields are plain JSON

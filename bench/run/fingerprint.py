@@ -82,6 +82,30 @@ def verdict_fingerprint(scenario, controller_spec: str, limits) -> Fingerprint:
     return Fingerprint(_sha(_canonical({"format": FORMAT, "parts": parts})), parts)
 
 
+#: Each part in words, for messages ("made with another robot model").
+PART_NOUNS = {"scenario": "scenario content", "robot": "robot model", "controller": "controller code",
+              "limits": "limits", "bench": "bench code", "mujoco": "MuJoCo version", "numpy": "NumPy version"}
+
+
+def stale_reason(result: dict, fp: Fingerprint) -> str:
+    """"" when ``result`` (a result.json dict) was made with the inputs ``fp`` describes, else why not
+    (``--resume`` reuses a result only when this is empty)."""
+    digest = result.get("fingerprint")
+    parts = result.get("fingerprint_parts")
+    if isinstance(digest, dict):
+        digest, parts = digest.get("digest"), parts or digest.get("parts")
+    if not digest:
+        return "result.json has no verdict fingerprint (made by an older bench)"
+    if digest == fp.digest:
+        return ""
+    old = parts if isinstance(parts, dict) else {}
+    changed = [PART_NOUNS.get(k, k) for k in PARTS if old.get(k) != fp.parts.get(k)]
+    if not changed:
+        return "result.json was made with other inputs (its verdict fingerprint differs)"
+    words = changed[0] if len(changed) == 1 else ", ".join(changed[:-1]) + " and " + changed[-1]
+    return f"result.json was made with another {words} (its verdict fingerprint differs)"
+
+
 # --------------------------------------------------------------------------- hashing helpers
 
 
