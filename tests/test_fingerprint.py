@@ -134,6 +134,18 @@ def test_a_module_controller_changes_with_its_file(world, monkeypatch):
     assert changed_parts(sealed, fingerprint(world, "sealed:" + spec)) == {"controller"}
 
 
+def test_a_module_controller_follows_the_helpers_of_its_own_package(world, monkeypatch):
+    pkg = world / "fp_pkg"
+    pkg.mkdir()
+    (pkg / "__init__.py").write_text("")
+    (pkg / "gains.py").write_text("KP = 40.0\n")
+    (pkg / "ctrl.py").write_text("from fp_pkg.gains import KP\n\nclass Ctrl:\n    pass\n")
+    monkeypatch.syspath_prepend(str(world))
+    before = fingerprint(world, "fp_pkg.ctrl:Ctrl")
+    edit(pkg / "gains.py", "40.0", "41.0")            # the named module is unchanged
+    assert changed_parts(before, fingerprint(world, "fp_pkg.ctrl:Ctrl")) == {"controller"}
+
+
 def test_a_registered_name_is_its_module_file_and_an_entry_point_its_distribution(world, monkeypatch):
     from bench.controllers import registry
 

@@ -348,13 +348,75 @@ def _module_file(module_name: str) -> Path | None:
     return Path(origin) if origin else None
 
 
+#: A package tree with more Python files than this is hashed once per process instead of per call.
+TREE_FILES_PER_CALL = 400
+
+
+def _package_dirs(top: str) -> list[Path]:
+    mod = sys.modules.get(top)
+    paths = list(getattr(mod, "__path__", []) or []) if mod is not None else []
+    if not paths:
+        try:
+            spec = importlib.util.find_spec(top)
+        except (ImportError, ValueError, AttributeError):
+            spec = None
+        paths = list(spec.submodule_search_locations or []) if spec is not None else []
+    return [Path(p) for p in paths]
+
+
+def _in_site_packages(path: Path) -> bool:
+    return any(part in ("site-packages", "dist-packages") for part in path.parts)
+
+
+def _tree_files(dirs: list[Path]) -> list[tuple[str, Path]]:
+    out = []
+    for root in dirs:
+        for folder, subdirs, names in os.walk(root):
+            subdirs[:] = sorted(d for d in subdirs if not d.startswith(".") and d != "__pycache__")
+            for name in sorted(names):
+                if name.endswith(".py"):
+                    p = Path(folder) / name
+                    out.append((p.relative_to(root).as_posix(), p))
+    return out
+
+
+def package_tree_digest(top: str) -> str | None:
+    """Hash of every ``*.py`` file of the top-level package ``top`` when it is a package of one's own
+    (not the bench, not installed into site-packages, whose version stands for it); else None.
+
+    A controller module usually imports helpers from its own package (gains, models): an edit
+    there changes the controller as much as an edit of the module itself.
+    """
+    if top == "bench":
+        return None                     # the ``bench`` part covers it
+    dirs = [d for d in _package_dirs(top) if d.is_dir() and not _in_site_packages(d.resolve())]
+    if not dirs:
+        return None
+    key = "tree:" + top
+    with _lock:
+        hit = _process_cache.get(key)
+    if hit is not None:
+        return hit
+    files = _tree_files(dirs)
+    digest = _sha(_canonical([(rel, file_sha256(p)) for rel, p in files]))
+    if len(files) > TREE_FILES_PER_CALL:   # large: walking it per episode would cost more than it guards
+        with _lock:
+            _process_cache[key] = digest
+    return digest
+
+
 def _module_identity(module_name: str) -> dict:
-    """The module's file hash, the distribution it comes from (name, version) if any."""
+    """The module's file hash, the distribution it comes from (name, version) if any, and the hash of
+    its own package's source when that package is not an installed one."""
     f = _module_file(module_name)
     out: dict[str, Any] = {"module": module_name, "file_sha256": file_sha256(f) if f is not None else "unknown"}
     dist = _distribution_of(module_name)
     if dist is not None:
         out["distribution"] = dist
+    if "." in module_name:
+        tree = package_tree_digest(module_name.split(".")[0])
+        if tree is not None:
+            out["package_sha256"] = tree
     return out
 
 
@@ -372,6 +434,8 @@ def controller_identity(spec) -> dict:
     - registered name or entry point: the distribution's name and version (if any) and the
       hash of the module file that defines it;
     - ``package.module:attr``: the module file's hash and its distribution's version, if any;
+    - in both cases, when the module's top-level package is one's own (not installed into
+      site-packages, not the bench), the hash of every ``*.py`` file of that package too;
     - ``exec:PROGRAM ARGS``: the program file's hash, the arguments, and the hash of every
       argument that names an existing file (``exec:python3 ctrl.py`` changes with ctrl.py);
     - ``sealed:SPEC``: the inner spec's identity, marked sealed;
