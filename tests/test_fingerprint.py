@@ -209,3 +209,18 @@ def test_stale_reason_says_which_inputs_differ(world):
     assert stale_reason(result, after) == ("result.json was made with another robot model and limits "
                                            "(its verdict fingerprint differs)")
     assert json.loads(json.dumps(result)) == result      # the fields are plain JSON
+
+
+def test_a_fifo_for_an_mjcf_or_an_unimportable_controller_does_not_stop_it(tmp_path, monkeypatch):
+    (tmp_path / "manifest.yaml").write_text("mjcf: pipe.xml\n")
+    os.mkfifo(tmp_path / "pipe.xml")                    # reading it would block forever
+    sc = SimpleNamespace(robot=SimpleNamespace(name=None, manifest=tmp_path / "manifest.yaml"))
+    assert len(robot_part(sc)) == 64
+    (tmp_path / "fp_broken").mkdir()
+    (tmp_path / "fp_broken" / "__init__.py").write_text("raise RuntimeError('broken on import')\n")
+    monkeypatch.syspath_prepend(str(tmp_path))
+    from bench.run.fingerprint import _safe_controller_identity
+
+    ident = _safe_controller_identity("fp_broken.ctrl:Ctrl")
+    assert ident["kind"] in ("module", "unresolved")
+    assert _safe_controller_identity("fp_broken.ctrl:Ctrl") == ident     # stable

@@ -73,7 +73,7 @@ def verdict_fingerprint(scenario, controller_spec: str, limits) -> Fingerprint:
     parts = {
         "scenario": scenario_part(scenario),
         "robot": robot_part(scenario),
-        "controller": _sha(_canonical(controller_identity(controller_spec))),
+        "controller": _sha(_canonical(_safe_controller_identity(controller_spec))),
         "limits": limits_part(limits),
         "bench": bench_part(),
         "mujoco": str(mujoco.__version__),
@@ -104,6 +104,15 @@ def stale_reason(result: dict, fp: Fingerprint) -> str:
         return "result.json was made with other inputs (its verdict fingerprint differs)"
     words = changed[0] if len(changed) == 1 else ", ".join(changed[:-1]) + " and " + changed[-1]
     return f"result.json was made with another {words} (its verdict fingerprint differs)"
+
+
+def _safe_controller_identity(spec) -> dict:
+    # A spec that cannot be resolved fails its episodes with the resolver's message; its
+    # fingerprint just says so (stably) instead of stopping the run here.
+    try:
+        return controller_identity(spec)
+    except Exception as exc:  # noqa: BLE001
+        return {"kind": "unresolved", "spec": str(spec), "error": type(exc).__name__}
 
 
 # --------------------------------------------------------------------------- hashing helpers
@@ -244,6 +253,8 @@ def robot_manifest_path(scenario) -> Path | None:
 def _manifest_mjcf(manifest: Path) -> str | None:
     from bench.scenario.yamlload import load_yaml
 
+    if not manifest.is_file():
+        return None
     try:
         data = load_yaml(manifest).data
     except Exception:  # noqa: BLE001 - an unreadable manifest is reported by the robot checks; hash its bytes only
@@ -265,6 +276,8 @@ def _robot_files(manifest: Path) -> tuple[list[tuple[str, str, Path]], list[Path
     mjcf_path = manifest.parent / mjcf
     files.append(("mjcf", mjcf, mjcf_path))
     watched.append(mjcf_path)
+    if not mjcf_path.is_file():     # missing, or a FIFO or device that reading would block on
+        return files, watched
     refs, _problems = scan_mjcf(mjcf_path)
     for ref in refs:
         watched.extend(ref.candidates)
@@ -342,7 +355,7 @@ def _module_file(module_name: str) -> Path | None:
     if origin is None:
         try:
             spec = importlib.util.find_spec(module_name)
-        except (ImportError, ValueError, AttributeError):
+        except Exception:  # noqa: BLE001 - importing a parent package may raise anything
             spec = None
         origin = spec.origin if spec is not None and spec.has_location else None
     return Path(origin) if origin else None
@@ -358,7 +371,7 @@ def _package_dirs(top: str) -> list[Path]:
     if not paths:
         try:
             spec = importlib.util.find_spec(top)
-        except (ImportError, ValueError, AttributeError):
+        except Exception:  # noqa: BLE001 - importing a parent package may raise anything
             spec = None
         paths = list(spec.submodule_search_locations or []) if spec is not None else []
     return [Path(p) for p in paths]
