@@ -183,7 +183,8 @@ def _report(entries, args, parts, overrides) -> None:
         print(f"got worse beyond tolerance first at {group[0].first_worse.describe()}; "
               f"last within tolerance: {group[0].last_good.describe()}")
         rows = [[f"  {f.metric}", f"{f.reference.metrics[f.metric]:.4g} at #{f.reference.index}",
-                 f"{f.first_worse.metrics[f.metric]:.4g}", f"{f.tolerance.describe()}, {f.tolerance.direction} is better",
+                 f"{f.first_worse.metrics[f.metric]:.4g}",
+                 f"{f.tolerance.describe()}, {f.tolerance.direction} is better",
                  "still worse" if f.still_worse else "back within tolerance"] for f in group]
         print_table(rows, ["  metric", "reference", "then", "tolerance", "at the latest run"])
     if not findings and status is None:

@@ -206,7 +206,8 @@ def limits_part(limits) -> str:
 
 
 def bench_source_digest() -> str:
-    """sha256 over every ``*.py`` file of the installed ``bench`` package (relative name and bytes); once per process."""
+    """sha256 over every ``*.py`` file of the ``bench`` package in use (relative name and bytes);
+    computed once per process."""
     with _lock:
         hit = _process_cache.get("bench-source")
     if hit is not None:
