@@ -79,6 +79,15 @@ def test_several_changes_are_all_named(tmp_path, capsys):
                          "MuJoCo version changed (3.3.0 -> 4.0.0)")
 
 
+def test_another_seed_restarts_the_comparison(tmp_path):
+    db = tmp_path / "h.sqlite"
+    other = result(0.030)
+    other["seed"] = 7
+    write(db, result(0.010), other)
+    (r,) = restarts(trend(db))
+    assert r.reasons == ["seed changed (0 -> 7)"]
+
+
 def test_controller_code_changes_are_compared_across_unless_asked(tmp_path, capsys):
     # What a history is for: the controller change that made a metric worse is found, not hidden.
     db = tmp_path / "h.sqlite"

@@ -29,7 +29,8 @@ def register(sub) -> None:
     p = sub.add_parser("history", help="trend of a scenario over recorded runs; the first run that got worse",
                        description="Show what `bench run` and pytest sessions recorded. Runs are compared only "
                                    "with runs of the same scenario file, robot model files, limits, bench code "
-                                   "and MuJoCo/NumPy versions; where one changed, the comparison restarts and "
+                                   "and MuJoCo/NumPy versions, and the same seed; where one changed, the comparison "
+                                   "restarts and "
                                    "the reason is printed. " + EXIT_CODES)
     p.add_argument("scenario", nargs="?", metavar="SCENARIO", help="scenario id (omit to list scenarios)")
     p.add_argument("--metric", action="append", default=[], metavar="NAME",

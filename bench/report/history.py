@@ -525,11 +525,16 @@ def restart_reasons(previous: Entry, entry: Entry, parts: tuple[str, ...] = COMP
 
     Both with a fingerprint: each of ``parts`` that differs. Neither: the scenario's content hash.
     Only the later one: the comparison restarts, since what the earlier result ran on is unknown.
+    And in every case a different seed.
     """
     a, b = previous.fingerprint_parts, entry.fingerprint_parts
+    # the seed is recorded beside the fingerprint (``--seed`` overrides the scenario's): noise,
+    # trial draws and disturbances all follow it
+    seed = ([f"seed changed ({previous.seed} -> {entry.seed})"]
+            if previous.seed is not None and entry.seed is not None and previous.seed != entry.seed else [])
     if a and b:
         if previous.fingerprint and previous.fingerprint == entry.fingerprint:
-            return []
+            return seed
         out = []
         for name in parts:
             if a.get(name) == b.get(name):
@@ -538,14 +543,14 @@ def restart_reasons(previous: Entry, entry: Entry, parts: tuple[str, ...] = COMP
             if name in _VERSION_PARTS and a.get(name) and b.get(name):
                 text += f" ({a[name]} -> {b[name]})"
             out.append(text)
-        return out
+        return out + seed
     out = []
     if previous.content_hash != entry.content_hash:
         out.append(PART_CHANGES["scenario"])
     if a or b:
         out.append("the result before it has no verdict fingerprint" if b else
                    "this result has no verdict fingerprint")
-    return out
+    return out + seed
 
 
 @dataclass
