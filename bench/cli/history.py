@@ -2,7 +2,7 @@
 
 Without SCENARIO: every scenario in the database with its number of runs and last status.
 With it: one row per recorded run (time, commit, controller, status, metric values), where the
-comparison restarts and why (the scenario, the robot model, the limits, the bench or a library
+comparison restarts and why (the scenario, the robot model, the limits, the bench, a library or the seed
 changed: results on either side are not compared), then, for each metric, the first run where it
 got worse than the first comparable run beyond tolerance (the tolerances of ``bench compare``),
 and the last run before it that was still within tolerance.
