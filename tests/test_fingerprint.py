@@ -115,6 +115,8 @@ def test_limits_change_the_limits_part_and_no_limit_is_one_value(world):
     assert changed_parts(base, longer) == {"limits"}
     tick = fingerprint(world, limits=EpisodeLimits(tick_timeout_s=0.5, episode_timeout_s=600.0))
     assert changed_parts(base, tick) == {"limits"} and tick.parts["limits"] != longer.parts["limits"]
+    # no limits given means the defaults, as the episode runner reads it
+    assert fingerprint(world, limits=None).digest == fingerprint(world, limits=EpisodeLimits()).digest
     # 0 and None both mean "no limit" (see EpisodeLimits)
     assert (fingerprint(world, limits=EpisodeLimits(0, 0)).digest
             == fingerprint(world, limits=EpisodeLimits(None, None)).digest)

@@ -186,10 +186,15 @@ def scenario_part(scenario) -> str:
 
 
 def limits_part(limits) -> str:
-    """Hash of the limits; a limit of None or <= 0 means "no limit" either way, so both hash alike."""
+    """Hash of the limits; a limit of None or <= 0 means "no limit" either way, so both hash alike.
+
+    ``limits=None`` means the defaults, as the episode runner reads it (``EpisodeLimits()``).
+    """
     if limits is None:
-        values: dict = {}
-    elif dataclasses.is_dataclass(limits):
+        from bench.sim.episode import EpisodeLimits
+
+        limits = EpisodeLimits()
+    if dataclasses.is_dataclass(limits):
         values = dataclasses.asdict(limits)
     elif isinstance(limits, dict):
         values = dict(limits)
