@@ -164,3 +164,45 @@ def test_a_folder_in_place_of_the_database_is_a_message(tmp_path):
     (tmp_path / "h.sqlite").mkdir()
     with pytest.raises(HistoryError, match="is not a file"):
         open_run(tmp_path / "h.sqlite", source="bench run", cwd=tmp_path, git=None)
+
+
+STAND = """\
+name: stand-{i}
+robot: quad12
+duration: 0.2
+criteria:
+  no_fall: true
+"""
+
+
+def test_bench_run_killed_then_resumed_records_each_episode_once(tmp_path):
+    # Through `bench run` itself: needs the single run path, which writes history per episode.
+    pytest.importorskip("bench.run.sinks", reason="bench run writes history per episode on the single run path")
+    import glob
+    import time
+
+    suite = tmp_path / "suite"
+    suite.mkdir()
+    for i in range(8):
+        (suite / f"s{i}.yaml").write_text(STAND.format(i=i))
+    cmd = [sys.executable, "-m", "bench", "run", str(suite), "--controller", "joint-pd", "--out", str(tmp_path / "out"),
+           "--no-plots", "--workers", "1"]
+    proc = subprocess.Popen(cmd, cwd=tmp_path, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    try:
+        deadline = time.monotonic() + 120
+        while len(glob.glob(str(tmp_path / "out" / "*" / "result.json"))) < 3 and proc.poll() is None:
+            assert time.monotonic() < deadline
+            time.sleep(0.02)
+        os.kill(proc.pid, signal.SIGKILL)
+    finally:
+        proc.wait(30)
+    assert proc.returncode == -signal.SIGKILL       # killed mid-run, not finished
+    with History(tmp_path / "out" / "history.sqlite") as h:
+        # written as each episode finished (result.json first, then its row: the third may be in between)
+        assert 2 <= h.count() < 8
+    done = subprocess.run(cmd + ["--resume"], cwd=tmp_path, capture_output=True, text=True, timeout=300)
+    assert done.returncode == 0, done.stderr
+    con = sqlite3.connect(tmp_path / "out" / "history.sqlite")
+    rows = con.execute("SELECT scenario, COUNT(*) FROM results GROUP BY scenario ORDER BY scenario").fetchall()
+    assert rows == [(f"stand-{i}", 1) for i in range(8)]
+    assert con.execute("SELECT COUNT(*) FROM results WHERE fingerprint IS NULL OR result_uid IS NULL").fetchone()[0] == 0
