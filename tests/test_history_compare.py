@@ -166,3 +166,28 @@ def test_bad_input_is_exit_2_and_help_lists_the_exit_codes(tmp_path, capsys):
     text = " ".join(capsys.readouterr().out.split())
     assert "Exit codes: 0 shown" in text and "1 only with --fail-on-regression" in text
     assert "2 invalid input" in text
+
+
+def test_bench_run_resume_and_history_see_an_mjcf_change(tmp_path, capsys, monkeypatch):
+    # Through `bench run`: needs the single run path, which fingerprints each episode.
+    pytest.importorskip("bench.run.sinks", reason="bench run fingerprints episodes on the single run path")
+    import shutil
+    from pathlib import Path
+
+    repo = Path(__file__).resolve().parents[1]
+    shutil.copytree(repo / "models" / "quad12", tmp_path / "robot")
+    (tmp_path / "s.yaml").write_text("name: mine\nrobot: {manifest: robot/manifest.yaml}\nduration: 0.2\n"
+                                     "criteria:\n  no_fall: true\n")
+    monkeypatch.chdir(tmp_path)
+    argv = ["run", "s.yaml", "--controller", "joint-pd", "--out", "out", "--no-plots", "--workers", "1", "--resume"]
+    assert main(argv) == 0
+    assert main(argv) == 0                           # nothing changed: reused, not recorded again
+    assert History(tmp_path / "out" / "history.sqlite").count() == 1
+    xml = tmp_path / "robot" / "quad12.xml"
+    xml.write_text(xml.read_text().replace("quad12: the open", "quad12 (edited): the open", 1))
+    assert main(argv) == 0                           # the MJCF changed: run again, a second row
+    capsys.readouterr()
+    assert main(["history", "mine", "--db", "out/history.sqlite"]) == 0
+    out = capsys.readouterr().out
+    assert "mine with controller joint-pd: 2 run(s)" in out
+    assert "* comparison restarts at #2 (" in out and "robot model changed" in out
