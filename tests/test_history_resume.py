@@ -80,6 +80,9 @@ def test_recording_a_result_again_changes_nothing(tmp_path):
         assert h.count() == 3
         (e,) = h.trend("s1")
     assert e.metrics["height_error_max"] == 0.01 and e.result_uid == "uid-01"
+    with pytest.raises(HistoryError, match="NOT NULL"):        # a broken result is an error, not skipped
+        with open_run(db, source="bench run", cwd=tmp_path, git=None) as run:
+            run.record(dict(result(3), status=None))
     assert e.fingerprint == "f" * 64 and e.fingerprint_parts == {"scenario": "h1", "robot": "r1"}
 
 

@@ -346,10 +346,12 @@ class History:
             con = self._connect(create=True)
             con.execute("BEGIN IMMEDIATE")
             try:
+                # Only a repeated result_uid is ignored (INSERT OR IGNORE would also drop a row that
+                # breaks another constraint, silently).
                 cur = con.execute(
-                    "INSERT OR IGNORE INTO results (run_uid, recorded_at, scenario, content_hash, controller, seed, "
+                    "INSERT INTO results (run_uid, recorded_at, scenario, content_hash, controller, seed, "
                     "status, reason, criteria, result_uid, fingerprint, fingerprint_parts) "
-                    "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                    "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?) ON CONFLICT (result_uid) DO NOTHING",
                     (run_uid, recorded_at or now_utc(), result["scenario"], result.get("content_hash", ""),
                      result.get("controller"), result.get("seed"), result["status"], result.get("reason"),
                      json.dumps(_json_clean(result.get("criteria") or []), allow_nan=False), uid, digest,
