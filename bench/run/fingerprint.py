@@ -15,8 +15,9 @@ hashes each input into a named part, and the parts into one digest:
 - ``controller``: what the controller spec resolves to (see ``controller_identity``).
 
 Parts are sha256 hex digests, except ``mujoco`` and ``numpy``, which are
-version strings. No absolute path enters a part: the same files in another
-folder give the same fingerprint, so a moved checkout keeps its history.
+version strings. No absolute path enters a part (except one written in an
+``exec:`` command line): the same files in another folder give the same
+fingerprint, so a moved checkout keeps its history.
 
 Cheap per episode: file hashes are cached by (path, mtime_ns, size, inode),
 and the MJCF scan is redone only when one of the files it found changed.
