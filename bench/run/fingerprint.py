@@ -470,7 +470,7 @@ def controller_identity(spec) -> dict:
         return {"kind": "sealed", "inner": controller_identity(spec[len("sealed:"):])}
     from bench.controllers import registry
 
-    registered = registry._registered.get(spec)   # read only: names registered in this process
+    registered = getattr(registry, "_registered", {}).get(spec)   # read only: names registered in this process
     if registered is not None:
         factory = registered[0]
         module = getattr(factory, "__module__", None) or "?"
