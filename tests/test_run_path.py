@@ -199,18 +199,10 @@ def test_resume_refuses_a_result_whose_fingerprint_differs(tmp_path, capsys):
     path.write_text(json.dumps(data))
     rc, err = _run(base + ["--resume"], capsys)
     assert rc == 0 and "resume: 0 of 1 results complete" in err
-    assert "good: run again: verdict fingerprint differs (scenario changed)" in err
+    assert "good: run again: result.json was made with another scenario content" in err
     assert json.loads(path.read_text())["result_uid"] != uid           # produced again
 
 
-def _placeholder_fingerprint() -> bool:
-    import bench.run.fingerprint as fp
-
-    return "PLACEHOLDER" in (fp.__doc__ or "")
-
-
-@pytest.mark.xfail(_placeholder_fingerprint(), reason="the placeholder fingerprint covers the scenario only",
-                   strict=True)
 def test_resume_reruns_when_the_robot_mjcf_changed(tmp_path, capsys):
     shutil.copytree(REPO / "models" / "quad12", tmp_path / "robot")
     (tmp_path / "good.yaml").write_text(GOOD + "robot: {manifest: robot/manifest.yaml}\n")
@@ -224,16 +216,6 @@ def test_resume_reruns_when_the_robot_mjcf_changed(tmp_path, capsys):
     assert "resume: 0 of 1 results complete" in err and "verdict fingerprint differs" in err
 
 
-def _history_per_episode() -> bool:
-    try:
-        from bench.report.history import open_run  # noqa: F401
-    except ImportError:
-        return False
-    return True
-
-
-@pytest.mark.xfail(not _history_per_episode(), reason="history rows keyed on result_uid come with open_run",
-                   strict=True)
 def test_resume_records_reused_results_in_history_exactly_once(tmp_path, capsys):
     (tmp_path / "a.yaml").write_text(GOOD)
     (tmp_path / "b.yaml").write_text(GOOD.replace("name: good", "name: other"))

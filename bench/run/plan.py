@@ -180,18 +180,10 @@ class Resumed:
     why: dict[int, str]                # episode index -> why it is run again (absent: no result yet)
 
 
-def _fingerprint_change(result: dict, planned) -> str:
-    old = result.get("fingerprint") or ""
-    if not old:
-        return "its result has no verdict fingerprint (written by an older bench)"
-    parts = result.get("fingerprint_parts") or {}
-    changed = [k for k in sorted(set(parts) | set(planned.parts)) if parts.get(k) != planned.parts.get(k)]
-    return "verdict fingerprint differs" + (f" ({', '.join(changed)} changed)" if changed else "")
-
-
 def resume(plan: Plan, out: Path) -> Resumed:
     """Reuse the complete results in ``out`` whose verdict fingerprint matches the plan's; the rest run."""
     from bench.report.results import complete_result, remove_temp_files
+    from bench.run.fingerprint import stale_reason
 
     out = Path(out)
     remove_temp_files(out)
@@ -203,9 +195,10 @@ def resume(plan: Plan, out: Path) -> Resumed:
         result, reason = complete_result(out, e.slug, scenario_id=e.id, seed=e.effective_seed,
                                          controller=plan.controller_name,
                                          content_hash=getattr(e.scenario, "content_hash", None) or None)
-        if result is not None and e.fingerprint is not None and result.get("fingerprint") != e.fingerprint.digest:
-            reason = _fingerprint_change(result, e.fingerprint)
-            result = None
+        if result is not None and e.fingerprint is not None:
+            reason = stale_reason(result, e.fingerprint)
+            if reason:
+                result = None
         if result is None:
             todo.append(e.index)
             if reason != "no result.json":
