@@ -11,6 +11,7 @@ import pytest
 # Imported here, before any in-process pytest run: pytester drops the modules a run imported when it
 # ends, and numpy and MuJoCo cannot be loaded twice in one process.
 import bench.controllers.simple  # noqa: F401
+import bench.controllers.stacks  # noqa: F401 - the controller check imports it
 import bench.execute.job  # noqa: F401
 import bench.report.history  # noqa: F401
 import bench.scenario  # noqa: F401

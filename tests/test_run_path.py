@@ -16,6 +16,7 @@ import pytest
 
 # pytester's in-process runs drop modules first imported inside them; import what the runs use up front
 import bench.controllers.simple  # noqa: F401
+import bench.controllers.stacks  # noqa: F401 - the controller check imports it
 import bench.execute.job  # noqa: F401
 import bench.pytest_plugin  # noqa: F401
 import bench.render.postrun  # noqa: F401
