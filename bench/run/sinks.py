@@ -73,38 +73,18 @@ class HistorySink:
 
 
 def _describe(exc: BaseException) -> str:
-    try:
-        from bench.report.history import HistoryError
-    except ImportError:
-        HistoryError = ()  # noqa: N806
-    if HistoryError and isinstance(exc, HistoryError):
+    from bench.report.history import HistoryError
+
+    if isinstance(exc, HistoryError):
         return str(exc)
     return f"{type(exc).__name__}: {exc}"
 
 
-class _RunHistory:
-    """Adapter over the history database until ``open_run`` exists: same ``record``/``close`` shape."""
-
-    def __init__(self, path: Path, *, source: str, cwd, run_uid: str | None) -> None:
-        from bench.report.history import History, git_state, new_run_uid
-
-        self.uid = run_uid or new_run_uid()
-        self._h = History(path)
-        self._h.begin_run(self.uid, source=source, git=git_state(cwd), cwd=Path(cwd).resolve())
-
-    def record(self, result: dict) -> None:
-        self._h.record(self.uid, result)
-
-    def close(self) -> None:
-        self._h.close()
-
-
 def open_history(path: Path, *, source: str, cwd, run_uid: str | None = None):
-    """The history writer of one run: ``.record(result)`` per episode, ``.close()``."""
-    try:
-        from bench.report.history import open_run
-    except ImportError:
-        return _RunHistory(path, source=source, cwd=cwd, run_uid=run_uid)
+    """The history writer of one run: ``.record(result)`` per episode (one transaction, a repeated
+    ``result_uid`` ignored), ``.close()``."""
+    from bench.report.history import open_run
+
     return open_run(path, source=source, cwd=cwd, run_uid=run_uid)
 
 
