@@ -292,3 +292,16 @@ def test_every_planned_episode_gets_a_result(tmp_path, capsys, monkeypatch):
     lost = [r for r in summary["results"] if r["status"] == "error"]
     assert lost[0]["reason"] == "episode produced no result"
     assert json.loads((out / lost[0]["result"]).read_text())["reason"] == "episode produced no result"
+
+
+def test_the_fixture_checks_as_bench_check_does(files):
+    pytester = files
+    pytester.makepyfile(test_fix="""
+        def test_bad(bench_run):
+            bench_run("bad/badjoint.yaml", "joint-pd")
+    """)
+    res = pytester.runpytest("-q", "-p", "no:cacheprovider", "test_fix.py", "--bench-out", "fx", "--bench-no-history")
+    res.assert_outcomes(failed=1)
+    text = res.stdout.str()
+    assert "bad/badjoint.yaml:4:28: faults.0.lock.joint: robot 'quad12' has no joint 'FR_nope'" in text
+    assert not (pytester.path / "fx").exists()
