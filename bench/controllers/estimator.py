@@ -36,9 +36,12 @@ process and to its velocity measurement. Left out, it reads as the trunk
 moving slower than it does (a few per cent of the distance on the bundled
 robot's 2 cm feet).
 
-The velocity and ground-height rows of a foot not in contact get their variance
-multiplied by ``SWING_INFLATION`` (they carry no information then). A foot that
-has just touched down can be trusted gradually over ``contact_settle_s``.
+The rows of a foot out of contact are left out (zeroed), and its state is
+re-seated at the leg's reach ``p + R r_i`` with a large variance and no
+correlation to the rest, so it says nothing about the trunk and is caught
+fresh where it lands. A foot that has just touched down may be trusted
+gradually over ``contact_settle_s`` (its velocity and height variances divided
+by the trust, which ramps from 0 to 1).
 
 Structure used: every noise is diagonal in world axes (the accelerometer's is
 isotropic, and ``s^2 I`` stays ``s^2 I`` under any rotation; the kinematic
@@ -69,8 +72,10 @@ import numpy as np
 from bench.controllers import so3
 from bench.controllers.trunk_kinematics import TrunkFrameFeet
 
-#: Variance factor on the measurements of a foot not in contact (effectively ignored).
-SWING_INFLATION = 1e6
+#: Variance of a foot out of contact (m^2): its position is unknown until it lands.
+RELEASED_FOOT_VAR_M2 = 1.0
+#: Trust below which a settling foot's variances stop growing (keeps them finite).
+_MIN_TRUST = 1e-6
 
 
 def _diag_view(a: np.ndarray) -> np.ndarray:
@@ -222,8 +227,11 @@ class LegImuEstimator:
             H[:, nf + i, 1] = 1.0
             if p.ground_height_noise_m is not None:
                 H[2, 2 * nf + i, 2 + i] = 1.0
-        self.H = H
-        self._Ht = H.transpose(0, 2, 1)
+        self._H0 = H
+        self.H = H.copy()                   # H0 with the rows of feet out of contact zeroed
+        self._Ht = self.H.transpose(0, 2, 1)
+        self._mask = np.zeros((3, m))
+        self._active = np.zeros(nf, dtype=bool)
         self._height_on = p.ground_height_noise_m is not None
 
         a2 = p.accel_noise_mps2 ** 2
@@ -247,6 +255,8 @@ class LegImuEstimator:
         self._foot_w = np.zeros((nf, 3))
         self._roll = np.zeros((nf, 3))
         self._roll_step = np.zeros((3, nf))
+        self._t3 = np.zeros(3)
+        self._t3n = np.zeros((3, n))
         self._acc = np.zeros(3)
         self._dx = np.zeros((3, 1, n))
         self._y = np.zeros((3, m))
@@ -351,13 +361,21 @@ class LegImuEstimator:
         # an accelerometer sample describes the motion just before it was read
         # (here: the physics step that ended at this tick), so it drives the
         # prediction from the previous tick to this one
-        x[:, 0] += dt * x[:, 1] + (0.5 * dt * dt) * a
-        x[:, 1] += dt * a
+        t3 = self._t3
+        np.multiply(x[:, 1], dt, out=t3)
+        x[:, 0] += t3
+        np.multiply(a, 0.5 * dt * dt, out=t3)
+        x[:, 0] += t3
+        np.multiply(a, dt, out=t3)
+        x[:, 1] += t3
         np.multiply(self._roll.T, dt, out=self._roll_step)
-        x[:, 2:] += self._roll_step          # released swing feet do not care
+        x[:, 2:] += self._roll_step          # released feet are re-seated after the update anyway
         # P <- A P A^T with A = I + dt e_p e_v^T: a row operation, then a column operation
-        P[:, 0, :] += dt * P[:, 1, :]
-        P[:, :, 0] += dt * P[:, :, 1]
+        t3n = self._t3n
+        np.multiply(P[:, 1, :], dt, out=t3n)
+        P[:, 0, :] += t3n
+        np.multiply(P[:, :, 1], dt, out=t3n)
+        P[:, :, 0] += t3n
         self._Pv += self._q_pv
 
         tin = self._in_contact_s
@@ -380,20 +398,28 @@ class LegImuEstimator:
     def _correct(self) -> None:
         nf = self.n_feet
         x, P, H = self.x, self.P, self.H
-        y, r = self._y, self._r
+        y, r, mask = self._y, self._r, self._mask
+        trust = self._trust
+        active = self._active
+        np.greater(trust, 0.0, out=active)
+        # rows of a foot out of contact are left out exactly (zero row, zero reading)
+        mask[:, :nf] = active
+        mask[:, nf:2 * nf] = active
+        mask[2, 2 * nf:] = active
+        np.multiply(self._H0, mask[:, :, None], out=H)
         y[:, :nf] = self._rel_pos.T
         np.subtract(self._roll.T, self._rel_vel.T, out=y[:, nf:2 * nf])
-        # untrusted rows: variance times (1 + (1 - trust) * SWING_INFLATION)
+        # a foot being settled in: velocity and height variances over its trust
         infl = self._infl
-        np.subtract(1.0, self._trust, out=infl)
-        infl *= SWING_INFLATION
-        infl += 1.0
+        np.maximum(trust, _MIN_TRUST, out=infl)
+        np.divide(1.0, infl, out=infl)
         r[:, :nf] = self._r_pos[:, None]
         np.multiply(infl, self._r_vel[:, None], out=r[:, nf:2 * nf])
         if self._height_on:
             y[2, 2 * nf:] = self.radius
             y[2, 2 * nf:] += self.ground_height_m
             np.multiply(infl, self._r_h, out=r[2, 2 * nf:])
+        y *= mask
 
         np.matmul(H, x[:, :, None], out=self._hx)
         np.subtract(y, self._hx[:, :, 0], out=self._e)
@@ -413,10 +439,20 @@ class LegImuEstimator:
         np.multiply(tmp, 0.5, out=P)
 
         np.multiply(self._e, self._Sinv_e, out=self._nis_terms)
-        trusted = float(self._trust.sum())
-        dof = trusted * (6.0 + (1.0 if self._height_on else 0.0))
-        self.state.nis = float(self._nis_terms.sum()) / dof if dof > 0 else 0.0
-        self.state.n_stance = int(np.count_nonzero(self._trust >= 1.0))
+        n_active = int(np.count_nonzero(active))
+        dof = n_active * (6 + (1 if self._height_on else 0))
+        self.state.nis = float(self._nis_terms.sum()) / dof if dof else 0.0
+        self.state.n_stance = int(np.count_nonzero(trust >= 1.0))
+
+        # a released foot: seated at the leg's reach, uncorrelated, uncertain; caught where it lands
+        if n_active < nf:
+            for i in range(nf):
+                if not active[i]:
+                    j = 2 + i
+                    np.add(x[:, 0], self._rel_pos[i], out=x[:, j])
+                    P[:, j, :] = 0.0
+                    P[:, :, j] = 0.0
+                    P[:, j, j] = RELEASED_FOOT_VAR_M2
 
     def _publish(self, t: float) -> None:
         s = self.state

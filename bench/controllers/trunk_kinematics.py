@@ -20,6 +20,14 @@ import mujoco
 import numpy as np
 
 
+def _as_slice(idx):
+    """``slice`` equal to an index array when it is contiguous and increasing, else the array."""
+    idx = np.asarray(idx, dtype=np.int64)
+    if len(idx) and np.array_equal(idx, np.arange(idx[0], idx[0] + len(idx))):
+        return slice(int(idx[0]), int(idx[0]) + len(idx))
+    return idx
+
+
 class TrunkFrameFeet:
     """Foot kinematics of the nominal robot relative to its trunk.
 
@@ -44,8 +52,8 @@ class TrunkFrameFeet:
         d.qpos[qa + 3:qa + 7] = (1.0, 0.0, 0.0, 0.0)
         d.qvel[:] = 0.0
         self._angvel = d.qvel[va + 3:va + 6]
-        self._jq = np.asarray(robot.joint_qpos_adr, dtype=np.int64)
-        self._jv = np.asarray(robot.joint_dof_adr, dtype=np.int64)
+        self._jq = _as_slice(robot.joint_qpos_adr)     # a slice when contiguous: no index work per tick
+        self._jv = _as_slice(robot.joint_dof_adr)
         self._sites = [int(s) for s in robot.foot_site_ids]
         self._site_idx = np.asarray(self._sites, dtype=np.int64)
         self.jac = np.zeros((3 * self.n_feet, m.nv))
