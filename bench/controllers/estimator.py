@@ -39,9 +39,7 @@ robot's 2 cm feet).
 The rows of a foot out of contact are left out (zeroed), and its state is
 re-seated at the leg's reach ``p + R r_i`` with a large variance and no
 correlation to the rest, so it says nothing about the trunk and is caught
-fresh where it lands. A foot that has just touched down may be trusted
-gradually over ``contact_settle_s`` (its velocity and height variances divided
-by the trust, which ramps from 0 to 1).
+fresh where it lands.
 
 Structure used: every noise is diagonal in world axes (the accelerometer's is
 isotropic, and ``s^2 I`` stays ``s^2 I`` under any rotation; the kinematic
@@ -51,7 +49,7 @@ batched as ``(3, ...)`` arrays. Arrays are allocated once in the constructor;
 a tick allocates nothing but Python floats.
 
 Health: ``pos_std_m`` and ``vel_std_mps`` are the filter's own standard
-deviations; ``nis`` is the normalised innovation squared per trusted
+deviations; ``nis`` is the normalised innovation squared per stance-foot
 measurement, about 1 while the sensors agree with the model and much larger
 when they do not (a frozen encoder, a slipping foot).
 
@@ -74,8 +72,6 @@ from bench.controllers.trunk_kinematics import TrunkFrameFeet
 
 #: Variance of a foot out of contact (m^2): its position is unknown until it lands.
 RELEASED_FOOT_VAR_M2 = 1.0
-#: Trust below which a settling foot's variances stop growing (keeps them finite).
-_MIN_TRUST = 1e-6
 
 
 def _diag_view(a: np.ndarray) -> np.ndarray:
@@ -128,31 +124,27 @@ class EstimatorParams:
     """Noise figures of :class:`LegImuEstimator` (SI; every one a standard deviation).
 
     ``accel_noise_mps2``: per-sample accelerometer noise plus unmodelled
-    acceleration. ``stance_foot_drift_m_per_rt_s`` / ``swing_foot_drift_m_per_rt_s``:
-    random-walk intensity of a stance / swing foot (position std grows as this
-    times the square root of time). ``kin_pos_noise_m``: foot position from the
+    acceleration. ``stance_foot_drift_m_per_rt_s``:
+    random-walk intensity of a stance foot (its position std grows as this
+    times the square root of time: slip, contact compression). ``kin_pos_noise_m``: foot position from the
     legs (encoders, link lengths, foot rolling). ``kin_vel_noise_mps``: foot
     velocity from the legs (joint velocity noise, impacts, foot compression).
     The three kinematic figures may also be given per world axis ``(x, y, z)``. ``ground_height_noise_m``:
     the stance-foot height pseudo-measurement; ``None`` turns it off (the
     default: it assumes the ground height is known, see
-    :meth:`LegImuEstimator.set_ground_height`). ``contact_settle_s``: time over
-    which a new stance foot's velocity is trusted linearly from 0 to 1 (0: at
-    once). ``init_pos_std_m`` / ``init_vel_std_mps``: uncertainty at reset.
+    :meth:`LegImuEstimator.set_ground_height`). ``init_pos_std_m`` / ``init_vel_std_mps``: uncertainty at reset.
     """
 
     accel_noise_mps2: float = 0.2
     stance_foot_drift_m_per_rt_s: float = 0.01
-    swing_foot_drift_m_per_rt_s: float = 10.0
     kin_pos_noise_m: float = 0.005
     kin_vel_noise_mps: float = 0.1
     ground_height_noise_m: float | None = None
-    contact_settle_s: float = 0.0
     init_pos_std_m: float = 0.001
     init_vel_std_mps: float = 0.1
 
     def check(self) -> None:
-        for name in ("accel_noise_mps2", "stance_foot_drift_m_per_rt_s", "swing_foot_drift_m_per_rt_s",
+        for name in ("accel_noise_mps2", "stance_foot_drift_m_per_rt_s",
                      "kin_pos_noise_m", "kin_vel_noise_mps", "init_pos_std_m", "init_vel_std_mps"):
             v = getattr(self, name)
             per_axis = name in _PER_AXIS
@@ -167,9 +159,6 @@ class EstimatorParams:
         g = self.ground_height_noise_m
         if g is not None and not (isinstance(g, (int, float)) and math.isfinite(g) and g > 0):
             raise ValueError(f"EstimatorParams.ground_height_noise_m must be a positive number or None, got {g!r}")
-        s = self.contact_settle_s
-        if not (isinstance(s, (int, float)) and math.isfinite(s) and s >= 0):
-            raise ValueError(f"EstimatorParams.contact_settle_s must be zero or positive, got {s!r}")
 
 
 @dataclass
@@ -179,8 +168,8 @@ class EstimatorState:
     ``base_pos`` trunk origin, world, m; ``base_linvel`` its velocity, world,
     m/s; ``foot_pos`` (F,3) foot sites, world, m; ``pos_std_m``, ``vel_std_mps``
     (3,) the filter's standard deviations per world axis; ``nis`` normalised
-    innovation squared per trusted measurement (about 1 when consistent);
-    ``n_stance`` feet trusted as stance this tick; ``t`` time of the
+    innovation squared per stance-foot measurement (about 1 when consistent);
+    ``n_stance`` feet taken as in stance this tick; ``t`` time of the
     observation, s.
     """
 
@@ -237,11 +226,9 @@ class LegImuEstimator:
         a2 = p.accel_noise_mps2 ** 2
         self._q_pv = a2 * np.array([[dt ** 4 / 4, dt ** 3 / 2], [dt ** 3 / 2, dt ** 2]])
         self._q_stance = _axes(p.stance_foot_drift_m_per_rt_s) ** 2 * dt
-        self._q_swing = p.swing_foot_drift_m_per_rt_s ** 2 * dt
         self._r_pos = _axes(p.kin_pos_noise_m) ** 2
         self._r_vel = _axes(p.kin_vel_noise_mps) ** 2
         self._r_h = (p.ground_height_noise_m or 1.0) ** 2
-        self._settle_s = float(p.contact_settle_s)
 
         # state and work arrays
         self.x = np.zeros((3, n))
@@ -263,7 +250,10 @@ class LegImuEstimator:
         self._hx = np.zeros((3, m, 1))
         self._e = np.zeros((3, m))
         self._e_row = self._e[:, None, :]
-        self._r = np.ones((3, m))
+        self._r = np.ones((3, m))           # measurement variances (rows left out keep 1)
+        self._r[:, :nf] = self._r_pos[:, None]
+        self._r[:, nf:2 * nf] = self._r_vel[:, None]
+        self._r[2, 2 * nf:] = self._r_h
         self._HP = np.zeros((3, m, n))
         self._S = np.zeros((3, m, m))
         self._Sd = _diag_view(self._S)
@@ -273,10 +263,7 @@ class LegImuEstimator:
         self._Sinv_e = self._sol[:, :, n]
         self._nis_terms = np.zeros((3, m))
         self._tmp_nn = np.zeros((3, n, n))
-        self._trust = np.zeros(nf)
-        self._in_contact_s = np.zeros(nf)
-        self._q_feet = np.zeros((3, nf))
-        self._infl = np.zeros(nf)
+        self._q_feet = np.repeat(self._q_stance[:, None], nf, axis=1)
         self._contact = np.zeros(nf, dtype=bool)
         self.state = EstimatorState(foot_pos=np.zeros((nf, 3)))
         self._initial_height_m: float | None = None
@@ -317,7 +304,6 @@ class LegImuEstimator:
         self._Pd[:, 0] = p.init_pos_std_m ** 2
         self._Pd[:, 1] = p.init_vel_std_mps ** 2
         self._Pd[:, 2:] = p.init_pos_std_m ** 2 + self._r_pos[:, None]
-        self._in_contact_s[:] = 0.0
         self._started = True
 
     # ------------------------------------------------------------------- tick
@@ -378,30 +364,15 @@ class LegImuEstimator:
         P[:, :, 0] += t3n
         self._Pv += self._q_pv
 
-        tin = self._in_contact_s
-        trust = self._trust
-        np.add(tin, dt, out=tin)
-        np.multiply(tin, contact, out=tin)
-        if self._settle_s > 0.0:
-            np.multiply(tin, 1.0 / self._settle_s, out=trust)
-            np.minimum(trust, 1.0, out=trust)
-        else:
-            trust[:] = contact
-        q = self._q_feet
-        np.subtract(1.0, trust, out=q[0])
-        q[0] *= self._q_swing
-        q[1] = q[0]
-        q[2] = q[0]
-        q += self._q_stance[:, None]
-        self._Pd_feet += q
+        # stance feet may creep (slip, contact compression); released feet are reset after the update
+        self._Pd_feet += self._q_feet
+        self._active[:] = contact
 
     def _correct(self) -> None:
         nf = self.n_feet
         x, P, H = self.x, self.P, self.H
         y, r, mask = self._y, self._r, self._mask
-        trust = self._trust
         active = self._active
-        np.greater(trust, 0.0, out=active)
         # rows of a foot out of contact are left out exactly (zero row, zero reading)
         mask[:, :nf] = active
         mask[:, nf:2 * nf] = active
@@ -409,16 +380,9 @@ class LegImuEstimator:
         np.multiply(self._H0, mask[:, :, None], out=H)
         y[:, :nf] = self._rel_pos.T
         np.subtract(self._roll.T, self._rel_vel.T, out=y[:, nf:2 * nf])
-        # a foot being settled in: velocity and height variances over its trust
-        infl = self._infl
-        np.maximum(trust, _MIN_TRUST, out=infl)
-        np.divide(1.0, infl, out=infl)
-        r[:, :nf] = self._r_pos[:, None]
-        np.multiply(infl, self._r_vel[:, None], out=r[:, nf:2 * nf])
         if self._height_on:
             y[2, 2 * nf:] = self.radius
             y[2, 2 * nf:] += self.ground_height_m
-            np.multiply(infl, self._r_h, out=r[2, 2 * nf:])
         y *= mask
 
         np.matmul(H, x[:, :, None], out=self._hx)
@@ -442,7 +406,7 @@ class LegImuEstimator:
         n_active = int(np.count_nonzero(active))
         dof = n_active * (6 + (1 if self._height_on else 0))
         self.state.nis = float(self._nis_terms.sum()) / dof if dof else 0.0
-        self.state.n_stance = int(np.count_nonzero(trust >= 1.0))
+        self.state.n_stance = n_active
 
         # a released foot: seated at the leg's reach, uncorrelated, uncertain; caught where it lands
         if n_active < nf:
