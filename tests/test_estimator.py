@@ -59,6 +59,34 @@ def _static_obs(quat=(1.0, 0.0, 0.0, 0.0), contact=True) -> Observation:
 
 # ----------------------------------------------------------------------------- math against references
 
+def test_trunk_frame_feet_agree_with_the_world_posed_kinematics():
+    """Reference: MuJoCo's kinematics of the robot posed in the world (the stacks' LegKinematics, which
+    runs mj_kinematics and mj_jacSite with the trunk where it is): foot = p + R r, foot velocity =
+    v + R rdot, for a random pose, orientation and motion."""
+    from bench.controllers.kinematics import LegKinematics
+    from bench.controllers.trunk_kinematics import TrunkFrameFeet
+
+    rng = np.random.default_rng(7)
+    obs = Observation.zeros(ROBOT.num_joints, ROBOT.num_feet)
+    q = rng.normal(size=4)
+    obs.imu_quat[:] = q / np.linalg.norm(q)
+    obs.imu_gyro[:] = rng.normal(size=3)
+    obs.joint_pos[:] = np.asarray(ROBOT.nominal_pose) + rng.normal(scale=0.2, size=ROBOT.num_joints)
+    obs.joint_vel[:] = rng.normal(size=ROBOT.num_joints)
+    obs.privileged.base_pos[:] = (0.4, -0.3, 0.5)
+    obs.privileged.base_linvel[:] = (0.2, 0.1, -0.3)
+    world = LegKinematics(ROBOT, with_bias=False)
+    world.update(obs)
+    feet = TrunkFrameFeet(ROBOT)
+    feet.update(obs.joint_pos, obs.joint_vel, obs.imu_gyro)
+    rot = np.zeros(9)
+    mujoco.mju_quat2Mat(rot, obs.imu_quat)
+    rot = rot.reshape(3, 3)
+    assert np.allclose(obs.privileged.base_pos + feet.foot_pos @ rot.T, world.foot_pos, atol=1e-12)
+    assert np.allclose(obs.privileged.base_linvel + feet.foot_vel @ rot.T, world.foot_vel, atol=1e-12)
+    assert np.allclose(feet.foot_radius_m, ROBOT.model.geom_size[ROBOT.foot_geom_ids][:, 0])
+
+
 def test_prediction_matches_constant_acceleration_kinematics():
     """Reference: s = s0 + v0 t + a t^2 / 2, v = v0 + a t (textbook kinematics), piecewise over two
     constant accelerations, with the trunk tilted so the accelerometer must be rotated into the world.
