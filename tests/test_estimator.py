@@ -20,6 +20,7 @@ Bars, and why:
 from __future__ import annotations
 
 import math
+from pathlib import Path
 
 import mujoco
 import numpy as np
@@ -31,6 +32,7 @@ from bench.robot import NominalRobot, resolve_robot
 from estimator_eval import estimator_errors, run_with_estimator, scenario_from
 
 ROBOT = NominalRobot(resolve_robot("quad12"))
+FIXTURES = Path(__file__).resolve().parent / "fixtures"
 DT = 0.002
 G = np.array(ROBOT.model.opt.gravity, dtype=float)
 
@@ -45,11 +47,11 @@ def _quat(yaw: float, pitch: float) -> np.ndarray:
     return q
 
 
-def _static_obs(quat=(1.0, 0.0, 0.0, 0.0), contact=True) -> Observation:
-    obs = Observation.zeros(ROBOT.num_joints, ROBOT.num_feet)
+def _static_obs(quat=(1.0, 0.0, 0.0, 0.0), contact=True, robot=ROBOT) -> Observation:
+    obs = Observation.zeros(robot.num_joints, robot.num_feet)
     obs.privileged = None                       # the estimator must never need the truth
     obs.imu_quat[:] = quat
-    obs.joint_pos[:] = ROBOT.nominal_pose
+    obs.joint_pos[:] = robot.nominal_pose
     obs.foot_contact[:] = contact
     rot = np.zeros(9)
     mujoco.mju_quat2Mat(rot, obs.imu_quat)
@@ -116,23 +118,26 @@ def test_prediction_matches_constant_acceleration_kinematics():
     assert s.n_stance == 0
 
 
-def test_static_robot_converges_to_the_kinematic_height():
+@pytest.mark.parametrize("robot_name", ["quad12", "quad30", "hex18"])
+def test_static_robot_converges_to_the_kinematic_height(robot_name):
     """Reference: MuJoCo's own forward kinematics of the robot at its nominal pose (feet at their
     sphere radius above z = 0). Nearly noiseless measurements, ground-height pseudo-measurement at 0,
     a start 0.2 m off in height and 0.3 m/s off in speed: the filter must land on the kinematic height
-    and a zero velocity."""
-    m = ROBOT.model
+    and a zero velocity. Both bundled robots and a six-legged test robot (nothing assumes four feet)."""
+    robot = ROBOT if robot_name == "quad12" else NominalRobot(resolve_robot(
+        str(FIXTURES / "hex18" / "manifest.yaml") if robot_name == "hex18" else robot_name))
+    m = robot.model
     d = mujoco.MjData(m)
-    d.qpos[:] = ROBOT.nominal_qpos
+    d.qpos[:] = robot.nominal_qpos
     mujoco.mj_kinematics(m, d)
-    trunk_z = d.xpos[ROBOT.trunk_body_id][2]
-    feet_z = d.site_xpos[ROBOT.foot_site_ids][:, 2]
-    radius = m.geom_size[ROBOT.foot_geom_ids][:, 0]
+    trunk_z = d.xpos[robot.trunk_body_id][2]
+    feet_z = d.site_xpos[robot.foot_site_ids][:, 2]
+    radius = m.geom_size[robot.foot_geom_ids][:, 0]
     h_ref = float(np.mean(trunk_z - feet_z + radius))
 
-    est = LegImuEstimator(ROBOT, DT, kin_pos_noise_m=1e-6, kin_vel_noise_mps=1e-6, ground_height_noise_m=1e-6,
+    est = LegImuEstimator(robot, DT, kin_pos_noise_m=1e-6, kin_vel_noise_mps=1e-6, ground_height_noise_m=1e-6,
                           init_pos_std_m=1.0, init_vel_std_mps=1.0)
-    obs = _static_obs()
+    obs = _static_obs(robot=robot)
     est.reset(initial_height_m=h_ref + 0.2)
     est.update(obs)
     est.set_ground_height(0.0)
@@ -143,7 +148,7 @@ def test_static_robot_converges_to_the_kinematic_height():
     assert s.base_pos[2] == pytest.approx(h_ref, abs=1e-4)
     assert np.all(np.abs(s.base_linvel) < 1e-4)
     assert np.allclose(s.foot_pos[:, 2], radius, atol=1e-4)
-    assert s.n_stance == ROBOT.num_feet and np.all(s.pos_std_m[2] < 1e-3)
+    assert s.n_stance == robot.num_feet and np.all(s.pos_std_m[2] < 1e-3)
 
 
 def test_state_is_updated_in_place_and_does_not_depend_on_the_truth():
