@@ -6,7 +6,11 @@ scenario: trunk velocity RMS error (3-D, world), worst trunk height error, horiz
 the end as a share of the horizontal distance travelled, the median consistency figure (NIS) over the
 second half, and the median time of one estimator update.
 
-    python tests/benchmarks/bench_estimator.py [--controller force-qp-l1] [scenario.yaml ...]
+    python tests/benchmarks/bench_estimator.py [--controller force-qp-l1] [--ground-height-noise M]
+                                               [scenario.yaml ...]
+
+``--ground-height-noise`` turns on the stance-foot height pseudo-measurement (the ground taken as flat
+at the height the robot starts on) with that standard deviation in metres.
 """
 
 from __future__ import annotations
@@ -49,15 +53,17 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("scenarios", nargs="*", default=list(DEFAULT))
     ap.add_argument("--controller", default="force-qp-l1")
+    ap.add_argument("--ground-height-noise", type=float, default=None, metavar="M")
     args = ap.parse_args()
+    params = {} if args.ground_height_noise is None else {"ground_height_noise_m": args.ground_height_noise}
     import estimator_eval
     estimator_eval.EstimatorProbe = _TimedProbe          # run_with_estimator builds this one
-    print(f"controller {args.controller}; estimator defaults; errors against the simulator's truth")
+    print(f"controller {args.controller}; estimator {params or 'defaults'}; errors against the simulator's truth")
     print(f"{'scenario':<18} {'status':<10} {'dist m':>7} {'vel RMSE m/s':>13} {'height err m':>13} "
           f"{'drift %':>8} {'NIS':>6} {'update us':>10}")
     for path in args.scenarios:
         sc = scenario_from(path)
-        ep, probe = run_with_estimator(sc, args.controller)
+        ep, probe = run_with_estimator(sc, args.controller, **params)
         e = estimator_errors(ep.trace, probe, ep.status)
         us = 1e6 * statistics.median(probe.update_s)
         print(f"{sc.name:<18} {e.status:<10} {e.distance_m:7.2f} {e.vel_rmse_mps:13.3f} {e.height_err_max_m:13.3f} "
