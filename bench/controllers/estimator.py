@@ -16,9 +16,10 @@ Process, over one control period ``dt`` with the acceleration held::
     v+   = v + a dt
     f_i+ = f_i + w_i
 
-``w_i`` is a random walk: small for a foot in stance (it does not move, bar
-slip), large for a foot in swing, so a swing foot is released and caught again
-where it lands. The acceleration noise enters ``p, v`` as a per-sample white
+``w_i`` is a small random walk for a foot in stance (it does not move, bar slip
+and contact compression); a foot out of contact is released (below). The
+accelerometer sample read at a tick drives the step that ends at that tick (it
+describes the motion just before it was read). The acceleration noise enters ``p, v`` as a per-sample white
 acceleration (the discrete white-noise-acceleration model).
 
 Measurements, per foot ``i``, with ``r_i`` and ``rdot_i`` the foot position and
@@ -27,7 +28,7 @@ gyro (:class:`~bench.controllers.trunk_kinematics.TrunkFrameFeet`)::
 
     f_i - p = R r_i                   every foot (the leg's length and direction)
     v       = -R rdot_i + roll_i      a stance foot does not slide in the world
-    f_i,z   = ground_z + radius_i     optional: a stance foot is on the ground
+    f_i,z   = ground_z + radius_i     optional: a stance foot is on known flat ground
 
 ``f_i`` is the centre of the foot site. A round foot of radius ``rho`` rolls
 without sliding, so its centre moves at ``roll_i = w_i x (rho e_z)`` (``w_i``
@@ -44,14 +45,14 @@ fresh where it lands.
 Structure used: every noise is diagonal in world axes (the accelerometer's is
 isotropic, and ``s^2 I`` stays ``s^2 I`` under any rotation; the kinematic
 ones may be given per world axis) and every model acts on each world axis
-alone, so the filter is exactly three independent filters of size ``2 + F``, one per world axis, run
-batched as ``(3, ...)`` arrays. Arrays are allocated once in the constructor;
-a tick allocates nothing but Python floats.
+alone, so the filter is exactly three independent filters of size ``2 + F``,
+one per world axis, run batched as ``(3, ...)`` arrays. Arrays are allocated
+once in the constructor; a tick creates no arrays.
 
 Health: ``pos_std_m`` and ``vel_std_mps`` are the filter's own standard
 deviations; ``nis`` is the normalised innovation squared per stance-foot
-measurement, about 1 while the sensors agree with the model and much larger
-when they do not (a frozen encoder, a slipping foot).
+measurement, about 1 or below while the sensors agree with the model and
+larger when they do not (noisy sensors, slipping feet).
 
 Use::
 
@@ -124,15 +125,20 @@ class EstimatorParams:
     """Noise figures of :class:`LegImuEstimator` (SI; every one a standard deviation).
 
     ``accel_noise_mps2``: per-sample accelerometer noise plus unmodelled
-    acceleration. ``stance_foot_drift_m_per_rt_s``:
-    random-walk intensity of a stance foot (its position std grows as this
-    times the square root of time: slip, contact compression). ``kin_pos_noise_m``: foot position from the
-    legs (encoders, link lengths, foot rolling). ``kin_vel_noise_mps``: foot
-    velocity from the legs (joint velocity noise, impacts, foot compression).
-    The three kinematic figures may also be given per world axis ``(x, y, z)``. ``ground_height_noise_m``:
-    the stance-foot height pseudo-measurement; ``None`` turns it off (the
-    default: it assumes the ground height is known, see
-    :meth:`LegImuEstimator.set_ground_height`). ``init_pos_std_m`` / ``init_vel_std_mps``: uncertainty at reset.
+    acceleration. ``stance_foot_drift_m_per_rt_s``: random-walk intensity of a
+    stance foot (its position std grows as this times the square root of time:
+    slip, contact compression). ``kin_pos_noise_m``: foot position from the
+    legs (encoders, link lengths). ``kin_vel_noise_mps``: foot velocity from
+    the legs (joint velocity noise, impacts, contact compression). These three
+    may also be given per world axis ``(x, y, z)``. ``ground_height_noise_m``:
+    the stance-foot height pseudo-measurement on flat ground at
+    ``ground_height_m`` (the height the robot starts on, or
+    :meth:`LegImuEstimator.set_ground_height`); ``None`` (default) turns it
+    off, as it is wrong on slopes and steps. ``init_pos_std_m`` /
+    ``init_vel_std_mps``: uncertainty at reset.
+
+    Defaults were chosen on trotting and slope runs of the bundled robot and
+    are on the cautious side for its noiseless simulated sensors.
     """
 
     accel_noise_mps2: float = 0.2
