@@ -27,7 +27,8 @@ OLD = {
 
 
 def _full() -> dict:
-    new = dict(OLD, traceback="Traceback ...", trial_of="stand-trials", fingerprint="9" * 64,
+    new = dict(OLD, traceback="Traceback ...", trial_of="stand-trials", watchdog_restored=["SIGALRM handler"],
+               fingerprint="9" * 64,
                fingerprint_parts={"scenario": "abc", "robot_mjcf": "def"}, result_uid="0" * 32,
                deciding={"name": "height_error_max", "value": 0.02, "limit": 0.01, "margin": -1.0,
                          "first_violation_s": 0.4, "passed": False},

@@ -105,6 +105,8 @@ def run_job(job: Job) -> Outcome:
         # identical for the same scenario, seed and controller, on any run and in any process
         trace_sha256=trace_digest(ep.trace.arrays),
         mujoco_warnings=tuple(getattr(ep, "mujoco_warnings", []) or []),
+        watchdog_restored=(None if getattr(ep, "watchdog_restored", None) is None
+                           else tuple(ep.watchdog_restored)),
         deciding=deciding,
     )
     return Outcome(record.to_json(), ep.trace, ep.events)

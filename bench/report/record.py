@@ -165,7 +165,9 @@ class DecidingCriterion:
 
 
 #: Keys written only when they have a value (their absence has always meant "not applicable").
-_OPTIONAL = ("episode_status", "score_from_s", "trace_sha256", "mujoco_warnings", "traceback", "trial_of")
+_OPTIONAL = ("episode_status", "score_from_s", "trace_sha256", "mujoco_warnings", "traceback", "trial_of",
+             "watchdog_restored")
+_LISTS = ("mujoco_warnings", "watchdog_restored")
 
 
 @dataclass(frozen=True)
@@ -196,6 +198,8 @@ class RunRecord:
     mujoco_warnings: tuple[str, ...] | None = None
     traceback: str | None = None
     trial_of: str | None = None
+    #: what the episode's watchdog had to restore after the controller changed it (present when it ran)
+    watchdog_restored: tuple[str, ...] | None = None
     fingerprint: str = ""
     fingerprint_parts: Mapping[str, str] = field(default_factory=dict)
     result_uid: str = ""
@@ -248,7 +252,7 @@ class RunRecord:
         for key in _OPTIONAL:
             value = getattr(self, key)
             if value is not None:
-                out[key] = list(value) if key == "mujoco_warnings" else value
+                out[key] = list(value) if key in _LISTS else value
         out["fingerprint"] = self.fingerprint
         out["fingerprint_parts"] = dict(self.fingerprint_parts)
         out["result_uid"] = self.result_uid
@@ -283,6 +287,10 @@ class RunRecord:
             if key in data:
                 _need(data, key, kind)
         warnings = data.get("mujoco_warnings")
+        restored = data.get("watchdog_restored")
+        for key, value in (("mujoco_warnings", warnings), ("watchdog_restored", restored)):
+            if value is not None and not isinstance(value, list):
+                raise RecordError(f"key {key!r} must be a list, got {type(value).__name__}")
         known = {f.name for f in fields(cls)}
         return cls(
             scenario=_need(data, "scenario", "str"),
@@ -309,6 +317,7 @@ class RunRecord:
             mujoco_warnings=None if warnings is None else tuple(str(w) for w in warnings),
             traceback=data.get("traceback"),
             trial_of=data.get("trial_of"),
+            watchdog_restored=None if restored is None else tuple(str(w) for w in restored),
             fingerprint=data.get("fingerprint") or "",
             fingerprint_parts={str(k): str(v) for k, v in parts.items()},
             result_uid=data.get("result_uid") or "",
