@@ -182,7 +182,7 @@ def execute_plan(config, node, plan) -> list[BenchRun]:
         result = outcome.result
         result_path = files.paths.get(e.index, settings.out / e.slug / "result.json")
         trace_path = result_path.parent / "trace.npz" if outcome.trace is not None else None
-        video = _render_video(settings, result_path.parent, result["status"] == "passed", e.scenario)
+        video = _render_video(settings, result_path.parent, RunRecord.from_json(result).passed, e.scenario)
         run = BenchRun(result, result_path, trace_path, video, trace=outcome.trace,
                        shown_path=lambda p: display_path(config, p))
         if baseline is not None:

@@ -115,7 +115,9 @@ class ProgressSink:
         self.progress = Progress(total)
 
     def on_result(self, episode, outcome) -> None:
-        self.progress.update(passed=outcome.result["status"] == "passed")
+        from bench.report.record import as_record
+
+        self.progress.update(passed=as_record(outcome.result).passed)
 
     def close(self) -> None:
         self.progress.close()
