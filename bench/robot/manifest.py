@@ -18,6 +18,8 @@ from typing import Any
 import numpy as np
 import yaml
 
+from bench.fileio import not_regular
+
 REQUIRED_SENSORS = ("orientation", "gyro", "accelerometer")
 _REQUIRED_KEYS = (
     "name", "mjcf", "trunk", "imu_site", "sensors", "joints", "actuators",
@@ -75,6 +77,9 @@ class RobotManifest:
 def load_manifest(path: str | Path) -> RobotManifest:
     """Read, validate and return the manifest at `path` (raises RobotError)."""
     path = Path(path).expanduser().resolve()
+    special = not_regular(path)
+    if special is not None:   # never opened: reading a FIFO would wait forever
+        raise RobotError(path, "manifest", f"the manifest is {special}, not a regular file")
     if not path.is_file():
         raise RobotError(path, "manifest", "file not found")
     try:
@@ -96,6 +101,10 @@ def load_manifest(path: str | Path) -> RobotManifest:
     name = _string(path, doc, "name")
     mjcf_rel = _string(path, doc, "mjcf")
     mjcf_path = (path.parent / mjcf_rel).resolve()
+    special = not_regular(mjcf_path)
+    if special is not None:
+        raise RobotError(path, "mjcf", f"MJCF {mjcf_rel!r} is {special}, not a regular file",
+                         "give the path of the robot's MJCF file")
     if not mjcf_path.is_file():
         raise RobotError(path, "mjcf", f"MJCF file not found: {mjcf_path}",
                          "the path is relative to the manifest")
