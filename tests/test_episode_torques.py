@@ -44,7 +44,8 @@ def stand(tmp_path_factory):
 
 @pytest.mark.parametrize("sign", [1.0, -1.0])
 def test_huge_finite_torques_are_clipped_to_the_limits_not_called_non_finite(stand, sign):
-    assert not np.isfinite(np.full(12, sign * 1e308).sum())     # the trap: the sum overflows
+    with np.errstate(over="ignore"):
+        assert not np.isfinite(np.full(12, sign * 1e308).sum())     # the trap: the sum overflows
     out = run_job(Job(stand, Returns(np.full(12, sign * 1e308)), None, LIMITS))
     r = out.result
     assert "non-finite" not in (r["reason"] or ""), r["reason"]
@@ -63,3 +64,19 @@ def test_nan_or_infinity_among_huge_torques_is_still_an_error(stand, bad):
     r = run_job(Job(stand, Returns(values), None, LIMITS)).result
     assert r["status"] == "error"
     assert "controller returned non-finite torques at tick 3 " in r["reason"]
+
+
+class RaisesOnOverflow(Returns):
+    """Asks NumPy to raise on overflow (a controller may), then returns huge finite torques."""
+
+    def reset(self, robot, control_dt):
+        super().reset(robot, control_dt)
+        np.seterr(over="raise")
+
+
+def test_huge_torques_are_clipped_even_when_the_controller_makes_numpy_raise_on_overflow(stand):
+    with np.errstate():     # restores this process's settings after the controller changed them
+        out = run_job(Job(stand, RaisesOnOverflow(np.full(12, 1e308)), None, LIMITS))
+    r = out.result
+    assert r["status"] != "error", r["reason"]
+    np.testing.assert_array_equal(out.trace["joint_torque"][AT:], out.trace["torque_limit"][AT:])
