@@ -8,7 +8,9 @@ criteria, non-timing metrics and the trace digest). Then one worker is killed
 with SIGKILL (its whole process group: nanny and worker) while it runs an
 episode, after the first result has arrived: the scheduler hands the lost
 episode to the other worker, so the run still completes with every episode, each
-identical to the serial one. Every process started here is killed at teardown.
+identical to the serial one. When every worker is lost, the episodes not
+finished become errors naming the cause instead of a run that waits forever.
+Every process started here is killed at teardown.
 """
 
 from __future__ import annotations
@@ -19,6 +21,7 @@ import shutil
 import signal
 import subprocess
 import sys
+import threading
 import time
 from pathlib import Path
 
@@ -35,6 +38,7 @@ SCENARIOS = sorted(str(p) for p in (REPO / "scenarios" / "basics").glob("*.yaml"
 CONTROLLER = "joint-pd"      # the cheapest registered controller: the test is about the path, not the walking
 START_TIMEOUT_S = 90
 RUN_TIMEOUT_S = 300
+HANG_GUARD_S = 120
 
 pytestmark = pytest.mark.skipif(DASK is None, reason="the dask command line (package distributed) is not installed")
 
@@ -164,3 +168,47 @@ def test_cluster_from_the_command_line_matches_serial_and_survives_a_killed_work
     assert "Traceback" not in text
     # Every episode is there, and the one that lost its worker was run again elsewhere: all as serial.
     assert _fingerprints(out) == serial
+
+
+def test_losing_every_worker_makes_the_unfinished_episodes_errors_instead_of_a_hang(cluster, tmp_path, monkeypatch):
+    import bench.execute.dask_cluster as dc
+    from distributed import Client
+
+    from bench.execute.job import Job, run_job
+    from bench.execute.outcomes import error_outcome
+    from bench.scenario import load_scenarios
+
+    monkeypatch.setattr(dc, "NO_WORKER_TIMEOUT_S", 2.0)
+    monkeypatch.setattr(dc, "WORKER_POLL_S", 0.2)
+    scenarios = load_scenarios(SCENARIOS)
+    jobs = [Job(sc, CONTROLLER) for sc in scenarios]
+    killed = threading.Event()
+
+    def kill_all_once_busy() -> None:
+        with Client(cluster.address, timeout=START_TIMEOUT_S) as client:
+            deadline = time.monotonic() + RUN_TIMEOUT_S
+            while not any(client.processing().values()) and time.monotonic() < deadline:
+                time.sleep(0.02)
+        for proc in cluster.workers:
+            _kill_group(proc)
+        killed.set()
+
+    got: dict = {}
+
+    def run() -> None:   # in a thread, so that a regression (waiting forever) fails instead of hanging
+        with dc.DaskExecutor(cluster.address) as ex:
+            killer.start()
+            got.update(ex.map(run_job, jobs, on_error=error_outcome))
+
+    killer = threading.Thread(target=kill_all_once_busy, daemon=True)
+    runner = threading.Thread(target=run, daemon=True)
+    runner.start()
+    runner.join(timeout=HANG_GUARD_S)
+    assert not runner.is_alive(), f"the run still waited for workers {HANG_GUARD_S} s after losing them all"
+    killer.join(timeout=30)
+    assert killed.is_set()
+    assert sorted(got) == list(range(len(jobs)))        # every episode accounted for, once
+    lost = [o.result for o in got.values() if o.result["status"] == "error"]
+    assert lost, "every episode finished before the workers were killed"
+    for r in lost:
+        assert r["reason"].startswith(f"no Dask worker was left on {cluster.address} for 2 s"), r["reason"]
