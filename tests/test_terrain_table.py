@@ -11,6 +11,7 @@ terrain.
 
 from __future__ import annotations
 
+import json
 import math
 import textwrap
 
@@ -166,7 +167,7 @@ def test_height_query_with_mismatched_shapes_is_a_clear_error():
         terrain.height_at([1.0, 2.0, 3.0], [0.0, 0.0])
 
 
-def test_reported_stairs_scenario_checks_and_runs_without_error(tmp_path, capsys):
+def test_reported_stairs_scenario_checks_and_runs_without_error(tmp_path):
     """The scenario of the report passed ``bench check`` and then ended as an IndexError."""
     from bench.cli import main
 
@@ -183,7 +184,6 @@ def test_reported_stairs_scenario_checks_and_runs_without_error(tmp_path, capsys
     assert main(["check", str(path)]) == 0
     out = tmp_path / "out"
     code = main(["run", str(path), "--out", str(out), "--no-plots", "--no-history", "--controller", "joint-pd"])
-    import json
     result = json.loads((out / "stairs-report" / "result.json").read_text())
     assert result["status"] == "passed", result["reason"]
     assert code == 0
