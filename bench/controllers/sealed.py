@@ -69,6 +69,8 @@ CHILD_MODULE = "bench.controllers.sealed_child"
 #: Environment variables the parent passes to the child.
 ENV_SYS_PATH = "BENCH_SEALED_SYS_PATH"
 ENV_PARENT_PID = "BENCH_SEALED_PARENT_PID"
+#: How the child starts the last line it writes to stderr before it exits on a fault.
+CHILD_SUMMARY = "sealed child: "
 #: Wait for the child to start, build its robot and controller, and answer READY, s. Importing the
 #: bench and building a solver takes about a second; a loaded machine may take several.
 DEFAULT_START_TIMEOUT_S = float(os.environ.get("BENCH_SEALED_START_TIMEOUT", "60.0"))
@@ -236,6 +238,7 @@ class SealedController:
         self._finalizer = weakref.finalize(self, _kill_group, self._proc)
 
     def _stderr_tail(self) -> str:
+        """The child's own one-line summary when it wrote one (``sealed child: ...``), else the last lines."""
         f = self._stderr
         if f is None:
             return ""
@@ -248,6 +251,8 @@ class SealedController:
         lines = [ln.strip() for ln in text.splitlines() if ln.strip()]
         if size > STDERR_TAIL_BYTES and lines:
             lines = lines[1:]   # the first one is probably cut
+        if lines and lines[-1].startswith(CHILD_SUMMARY):
+            return ": " + lines[-1][len(CHILD_SUMMARY):]
         lines = lines[-STDERR_TAIL_LINES:]
         return ("; its stderr ends: " + " | ".join(lines)) if lines else ""
 
@@ -260,7 +265,7 @@ class SealedController:
                 pass
         how = (f"exited with code {code}" if code is not None and code >= 0 else
                f"was killed by signal {-code}" if code is not None else "closed its output")
-        return SealedControllerError(f"sealed controller {self.spec!r} (child process) {how} {when}"
+        return SealedControllerError(f"sealed controller {self.spec!r}: child process {how} {when}"
                                      f"{self._stderr_tail()}")
 
     def _write(self, data, when: str) -> None:

@@ -29,7 +29,7 @@ import traceback
 import numpy as np
 
 from bench.controllers.sealed import (
-    BYE_TICK, ENV_PARENT_PID, ENV_SYS_PATH, FRAME_DTYPE, FRAMES, observation_frame_size, unpack_observation,
+    BYE_TICK, CHILD_SUMMARY, ENV_PARENT_PID, ENV_SYS_PATH, FRAME_DTYPE, FRAMES, observation_frame_size, unpack_observation,
 )
 
 EXIT_CONTROLLER_RAISED = 1
@@ -260,16 +260,16 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return serve(argv[0], fin, fout)
     except _ControllerRaised as exc:
-        print(f"sealed child: {exc}", file=sys.stderr, flush=True)
+        print(f"{CHILD_SUMMARY}{exc}", file=sys.stderr, flush=True)
         return EXIT_CONTROLLER_RAISED
     except _Stop as exc:
-        print(f"sealed child: {exc}", file=sys.stderr, flush=True)
+        print(f"{CHILD_SUMMARY}{exc}", file=sys.stderr, flush=True)
         return exc.code
     except BrokenPipeError:
         return 0   # the bench closed its end: the episode is over
     except Exception as exc:  # noqa: BLE001 - e.g. the manifest cannot be read: one line, then the traceback
         traceback.print_exc()
-        print(f"sealed child: {type(exc).__name__}: {exc}", file=sys.stderr, flush=True)
+        print(f"{CHILD_SUMMARY}{type(exc).__name__}: {exc}", file=sys.stderr, flush=True)
         return EXIT_BAD_INPUT
 
 
