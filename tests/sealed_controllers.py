@@ -99,12 +99,25 @@ class ChattyPD:
         return self.pd.step(obs, command)
 
 
+def _start_grandchild() -> None:
+    """A long-lived process started by the controller; its pid goes to $BENCH_TEST_SEALED_PIDFILE."""
+    path = os.environ.get(PIDFILE_ENV)
+    if path:
+        proc = subprocess.Popen([sys.executable, "-c", "import time; time.sleep(120)"])
+        with open(path, "w") as f:
+            f.write(str(proc.pid))
+
+
 class ExitsAt:
-    """Holds the pose, then calls os._exit(7) at tick 3 (the process vanishes without unwinding)."""
+    """Applies no torque, then calls os._exit(7) at tick 3 (the process vanishes without unwinding).
+
+    With $BENCH_TEST_SEALED_PIDFILE set it first starts a grandchild in reset().
+    """
 
     def reset(self, robot, control_dt: float) -> None:
         self.tau = np.zeros(robot.num_joints)
         self.k = 0
+        _start_grandchild()
 
     def step(self, obs, command):
         self.k += 1
@@ -120,11 +133,7 @@ class GrandchildThenHang:
 
     def reset(self, robot, control_dt: float) -> None:
         self.tau = np.zeros(robot.num_joints)
-        proc = subprocess.Popen([sys.executable, "-c", "import time; time.sleep(120)"])
-        path = os.environ.get(PIDFILE_ENV)
-        if path:
-            with open(path, "w") as f:
-                f.write(str(proc.pid))
+        _start_grandchild()
 
     def step(self, obs, command):
         time.sleep(120)

@@ -183,6 +183,14 @@ def test_hung_child_times_out_and_its_whole_group_is_killed(stand, tmp_path, mon
     assert _wait_dead(grandchild)   # killed with the group, not left to run its 120 s
 
 
+def test_what_a_crashed_child_started_is_killed_with_it(stand, tmp_path, monkeypatch):
+    pidfile = tmp_path / "grandchild.pid"
+    monkeypatch.setenv(sealed_controllers.PIDFILE_ENV, str(pidfile))
+    r = run_job(Job(stand, "sealed:sealed_controllers:ExitsAt")).result
+    assert r["status"] == "error" and "exited with code 7" in r["reason"]
+    assert _wait_dead(int(pidfile.read_text()))
+
+
 def test_child_dies_with_the_bench_process(tmp_path):
     # A bench process that is SIGKILLed (no cleanup runs) must not leave its sealed child behind.
     script = tmp_path / "parent.py"

@@ -193,6 +193,22 @@ def _wait_unreaped(proc: subprocess.Popen, timeout_s: float) -> bool:
         time.sleep(0.002)
 
 
+def _exit_status(proc: subprocess.Popen, timeout_s: float) -> int | None:
+    """The child's exit code (negative: the signal that killed it) once it has exited, without reaping it
+    (so that what it started can still be killed with its group); None if it still runs."""
+    if proc.returncode is not None:
+        return proc.returncode
+    if not _wait_unreaped(proc, timeout_s):
+        return None
+    try:
+        info = os.waitid(os.P_PID, proc.pid, os.WEXITED | os.WNOHANG | os.WNOWAIT)
+    except ChildProcessError:
+        return proc.returncode
+    if info is None:
+        return None
+    return info.si_status if info.si_code == os.CLD_EXITED else -info.si_status
+
+
 class SealedController:
     """Runs the Python controller ``spec`` in a child process (see the module docstring)."""
 
@@ -257,12 +273,7 @@ class SealedController:
         return ("; its stderr ends: " + " | ".join(lines)) if lines else ""
 
     def _died(self, when: str) -> SealedControllerError:
-        code = None
-        if self._proc is not None:
-            try:
-                code = self._proc.wait(timeout=2.0)
-            except subprocess.TimeoutExpired:
-                pass
+        code = _exit_status(self._proc, 2.0) if self._proc is not None else None
         how = (f"exited with code {code}" if code is not None and code >= 0 else
                f"was killed by signal {-code}" if code is not None else "closed its output")
         return SealedControllerError(f"sealed controller {self.spec!r}: child process {how} {when}"
