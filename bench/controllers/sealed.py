@@ -56,7 +56,7 @@ import weakref
 import numpy as np
 
 from bench.controllers.external import (
-    DEFAULT_TICK_TIMEOUT_S, PROTOCOL, PROTOCOL_VERSION, ExternalControllerError, ExternalControllerTimeout,
+    PROTOCOL, PROTOCOL_VERSION, ExternalControllerError, ExternalControllerTimeout,
 )
 
 PREFIX = "sealed:"
@@ -71,6 +71,10 @@ ENV_SYS_PATH = "BENCH_SEALED_SYS_PATH"
 ENV_PARENT_PID = "BENCH_SEALED_PARENT_PID"
 #: How the child starts the last line it writes to stderr before it exits on a fault.
 CHILD_SUMMARY = "sealed child: "
+#: Wait for one answer frame, s (the runner's own per-tick limit defaults to the same).
+DEFAULT_TICK_TIMEOUT_S = float(os.environ.get("BENCH_SEALED_TICK_TIMEOUT", "2.0"))
+#: Longest text line (READY, STATS) accepted from the child, bytes.
+MAX_LINE_BYTES = 1 << 20
 #: Wait for the child to start, build its robot and controller, and answer READY, s. Importing the
 #: bench and building a solver takes about a second; a loaded machine may take several.
 DEFAULT_START_TIMEOUT_S = float(os.environ.get("BENCH_SEALED_START_TIMEOUT", "60.0"))
@@ -315,6 +319,9 @@ class SealedController:
                 if line.startswith(b"#"):
                     continue
                 return line
+            if len(self._inbuf) > MAX_LINE_BYTES:
+                raise SealedControllerError(f"sealed controller {self.spec!r} sent over {MAX_LINE_BYTES} bytes "
+                                            f"without a line end {when}")
             self._fill(len(self._inbuf) + 1, deadline, when, what)
 
     def _abort(self) -> None:
