@@ -269,3 +269,22 @@ def test_bench_list_controllers_is_unchanged():
     names = [line.split()[0] for line in p.stdout.splitlines() if line.strip()]
     assert {"zero", "joint-pd", "force-qp", "force-qp-l1"} <= set(names)
     assert not any(n.startswith("sealed") for n in names)
+
+
+def test_naming_a_sealed_module_runs_none_of_its_code_in_the_bench_process(stand, tmp_path, monkeypatch):
+    # A package whose __init__ would tamper with the bench: it may only ever run in the child.
+    pkg = tmp_path / "tamper_pkg"
+    pkg.mkdir()
+    (pkg / "__init__.py").write_text("import bench.sim.episode as e\ne.FALL_HEIGHT_FRACTION = 0.0\n")
+    (pkg / "ctrl.py").write_text("from bench.controllers.simple import ZeroController as Ctrl\n")
+    monkeypatch.syspath_prepend(str(tmp_path))
+    from bench.sim import episode
+
+    factory = registry.resolve("sealed:tamper_pkg.ctrl:Ctrl")
+    assert "tamper_pkg" not in sys.modules and episode.FALL_HEIGHT_FRACTION == 0.4
+    r = run_job(Job(stand, "sealed:tamper_pkg.ctrl:Ctrl")).result
+    assert "tamper_pkg" not in sys.modules and episode.FALL_HEIGHT_FRACTION == 0.4
+    assert r["episode_status"] == "fell"   # zero torque, judged with the bench's own threshold
+    assert factory.sealed_spec == "tamper_pkg.ctrl:Ctrl"
+    with pytest.raises(registry.ControllerNotFound, match="cannot find module 'tamper_pkg.nope'"):
+        registry.resolve("sealed:tamper_pkg.nope:Ctrl")

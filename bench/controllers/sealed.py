@@ -42,7 +42,7 @@ the same user, with the same files and network.
 from __future__ import annotations
 
 import importlib
-import importlib.util
+import importlib.machinery
 import json
 import os
 import select
@@ -423,9 +423,9 @@ class SealedController:
 def from_spec(spec: str):
     """The factory for the registry name ``sealed:<spec>``; checks ``spec`` names a Python controller.
 
-    The check resolves the name without running the controller's code in this process where it
-    can: an entry point by name, ``package.module:attribute`` by finding the module (its parent
-    packages are imported). The child resolves it for real.
+    The check never runs the controller's code in this process (a package's ``__init__`` could
+    otherwise change the bench before the child even starts): an entry point is checked by name,
+    ``package.module:attribute`` by locating the module's file; the child imports and resolves it.
     """
     from bench.controllers import registry
 
@@ -450,15 +450,9 @@ def from_spec(spec: str):
         pass
     elif ":" in inner:
         module_name = inner.partition(":")[0]
-        try:
-            found = importlib.util.find_spec(module_name)
-        except (ImportError, ValueError) as exc:
-            found, why = None, f": {exc}"
-        else:
-            why = ""
-        if found is None:
+        if _find_module_spec(module_name) is None:
             raise registry.ControllerNotFound(
-                f"controller {PREFIX + spec!r}: cannot find module {module_name!r}{why}")
+                f"controller {PREFIX + spec!r}: cannot find module {module_name!r} on sys.path")
     else:
         try:
             registry.resolve(inner)   # not registered, not an entry point, no ':': raises with the known names
@@ -471,6 +465,41 @@ def from_spec(spec: str):
     factory.__doc__ = f"{inner} in a sealed child process"
     factory.sealed_spec = child_spec
     return factory
+
+
+def _find_module_spec(module_name: str):
+    """Locate ``module_name`` the way ``import`` would, without executing it or its parent packages."""
+    parts = module_name.split(".")
+    if not all(p.isidentifier() for p in parts):
+        return None
+    if module_name in sys.modules:
+        return getattr(sys.modules[module_name], "__spec__", None) or importlib.machinery.ModuleSpec(module_name, None)
+    path = None
+    spec = None
+    for i in range(len(parts)):
+        name = ".".join(parts[:i + 1])
+        loaded = sys.modules.get(name)
+        if loaded is not None:
+            spec = getattr(loaded, "__spec__", None) or importlib.machinery.ModuleSpec(name, None)
+            path = getattr(loaded, "__path__", None)
+        else:
+            spec = None
+            for finder in sys.meta_path:
+                find = getattr(finder, "find_spec", None)
+                if find is None:
+                    continue
+                try:
+                    spec = find(name, path, None)
+                except (ImportError, ValueError, TypeError):
+                    spec = None
+                if spec is not None:
+                    break
+            if spec is None:
+                return None
+            path = spec.submodule_search_locations
+        if i < len(parts) - 1 and path is None:
+            return None   # a parent that is not a package
+    return spec
 
 
 def _importable_reference(factory) -> str | None:
