@@ -165,8 +165,9 @@ def _kill_group(proc: subprocess.Popen | None) -> None:
     """Kill the child's whole process group (it leads its own session), then reap the child."""
     if proc is None:
         return
-    if proc.returncode is None:
-        # Not reaped yet, so its pid (= the group id) cannot have been reused.
+    if proc.returncode is None or not hasattr(os, "waitid"):
+        # Not reaped yet, so its pid (= the group id) cannot have been reused (without waitid a reaped
+        # child's group is killed too: its members keep the id in use).
         try:
             os.killpg(proc.pid, signal.SIGKILL)
         except (ProcessLookupError, PermissionError):
@@ -185,6 +186,12 @@ def _kill_group(proc: subprocess.Popen | None) -> None:
 def _wait_unreaped(proc: subprocess.Popen, timeout_s: float) -> bool:
     """True once the child has exited, without reaping it (its group can still be killed safely)."""
     deadline = time.monotonic() + timeout_s
+    if not hasattr(os, "waitid"):   # no waitid (macOS): wait and reap; the group is then killed by its id
+        try:
+            proc.wait(timeout=timeout_s)
+            return True
+        except subprocess.TimeoutExpired:
+            return False
     while True:
         try:
             info = os.waitid(os.P_PID, proc.pid, os.WEXITED | os.WNOHANG | os.WNOWAIT)
@@ -204,6 +211,8 @@ def _exit_status(proc: subprocess.Popen, timeout_s: float) -> int | None:
         return proc.returncode
     if not _wait_unreaped(proc, timeout_s):
         return None
+    if proc.returncode is not None:
+        return proc.returncode
     try:
         info = os.waitid(os.P_PID, proc.pid, os.WEXITED | os.WNOHANG | os.WNOWAIT)
     except ChildProcessError:
