@@ -222,6 +222,18 @@ def _exit_status(proc: subprocess.Popen, timeout_s: float) -> int | None:
     return info.si_status if info.si_code == os.CLD_EXITED else -info.si_status
 
 
+class _At:
+    """``at tick k (t=... s)``, formatted only when an error message is built."""
+
+    __slots__ = ("k", "t")
+
+    def __init__(self, k: int, t: float) -> None:
+        self.k, self.t = k, t
+
+    def __str__(self) -> str:
+        return f"at tick {self.k} (t={self.t:.3f} s)"
+
+
 class SealedController:
     """Runs the Python controller ``spec`` in a child process (see the module docstring)."""
 
@@ -389,7 +401,7 @@ class SealedController:
     def step(self, obs, command) -> np.ndarray:
         k, row = self._tick, self._row
         pack_observation(row, k, obs, command)
-        when = f"at tick {k} (t={obs.t:.3f} s)"
+        when = _At(k, obs.t)   # formatted only if a message needs it
         n = self._answer_bytes
         try:
             self._write(row, when)
