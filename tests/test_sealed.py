@@ -101,6 +101,18 @@ def test_in_process_controller_can_still_reach_the_simulation_known_limit(stand)
     assert r["episode_status"] == "completed" and r["status"] == "passed"
 
 
+def test_the_frame_carries_every_observation_field():
+    # A new Observation field must be carried by the frame too, or sealed controllers silently lose it.
+    import dataclasses
+
+    from bench.controllers.base import Observation, Privileged
+    from bench.controllers.sealed import FRAME_FIELDS
+
+    fields = [f.name for f in dataclasses.fields(Observation) if f.name != "privileged"]
+    fields += [f"privileged.{f.name}" for f in dataclasses.fields(Privileged)]
+    assert sorted(fields) == sorted(FRAME_FIELDS)
+
+
 # -- sealed: no way to the world, same physics --------------------------------------------------
 def test_sealed_hostile_controller_finds_no_world_and_the_robot_falls(stand):
     honest = run_job(Job(stand, "zero")).result

@@ -94,6 +94,12 @@ class SealedControllerTimeout(SealedControllerError, ExternalControllerTimeout):
 
 
 # -- frame layout (shared with the child) ---------------------------------------------------------
+#: The Observation fields a frame carries (``privileged`` as its two arrays). A field added to the
+#: Observation must be added here, to the frame and to the text protocol, or sealed runs lose it.
+FRAME_FIELDS = ("t", "imu_quat", "imu_gyro", "imu_accel", "joint_pos", "joint_vel", "foot_contact",
+                "privileged.base_pos", "privileged.base_linvel")
+
+
 def observation_frame_size(n_joints: int, n_feet: int) -> int:
     """Doubles in one bench -> program frame."""
     return 2 + 3 + 4 + 3 + 3 + 2 * n_joints + n_feet + 3 + 3
