@@ -144,6 +144,24 @@ def test_sealed_runs_are_bit_identical_to_in_process(sid):
         assert _physics_metrics(sealed) == _physics_metrics(inproc)
 
 
+def test_sealed_on_a_users_six_legged_robot_from_its_manifest_path(write_scenario):
+    # 18 joints, 6 feet, a manifest given by path: the child rebuilds that robot, not a bundled one.
+    import shutil
+
+    path = write_scenario("""
+        name: hex-stand-short
+        robot: {manifest: hex18/manifest.yaml}
+        duration: 0.5
+        criteria: {no_fall: true}
+    """)
+    shutil.copytree(HERE / "fixtures" / "hex18", path.parent / "hex18")
+    sc = _one(path)
+    inproc = run_job(Job(sc, "joint-pd")).result
+    sealed = run_job(Job(sc, "sealed:joint-pd")).result
+    assert sealed["status"] == inproc["status"] == "passed", sealed["reason"]
+    assert sealed["trace_sha256"] == inproc["trace_sha256"]
+
+
 def test_stdout_prints_in_the_child_do_not_corrupt_the_frames(stand):
     chatty = run_job(Job(stand, "sealed:sealed_controllers:ChattyPD")).result
     pd = run_job(Job(stand, "joint-pd")).result
