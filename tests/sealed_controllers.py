@@ -145,3 +145,39 @@ def module_level_factory():
     from bench.controllers.simple import JointPDController
 
     return JointPDController()
+
+
+class CommandEraser:
+    """Holds the pose (joint PD) and clears its command in place, as ``np.clip(command, ..., out=command)`` would.
+
+    Were the command array the runner's own, the trace would record the cleared command and a robot
+    standing still would track a 0.5 m/s command perfectly.
+    """
+
+    def reset(self, robot, control_dt: float) -> None:
+        from bench.controllers.simple import JointPDController
+
+        self.pd = JointPDController()
+        self.pd.reset(robot, control_dt)
+
+    def step(self, obs, command):
+        command[:] = 0.0
+        return self.pd.step(obs, command)
+
+
+class _IgnoresWrites(np.ndarray):
+    def __setitem__(self, key, value) -> None:
+        pass
+
+
+class VelocityFaker(CommandEraser):
+    """Holds the pose and swaps its observed trunk velocity for an array that ignores writes, reading 0.5 m/s.
+
+    Were the observation the runner's own, the runner's update would be lost and the trace would record
+    0.5 m/s forward for a robot standing still.
+    """
+
+    def step(self, obs, command):
+        if not isinstance(obs.privileged.base_linvel, _IgnoresWrites):
+            obs.privileged.base_linvel = np.array([0.5, 0.0, 0.0]).view(_IgnoresWrites)
+        return self.pd.step(obs, command)

@@ -94,6 +94,58 @@ def test_in_process_manifest_change_reaches_neither_the_world_nor_the_score(stan
     assert _physics_metrics(shrinker) == {**_physics_metrics(honest), "controller.seen_nominal_height": 0.001}
 
 
+WALK = """
+    name: walk-command
+    robot: quad12
+    duration: 1.5
+    commands:
+      - {at: 0.0}
+      - {at: 0.3, vx: 0.5}
+    criteria: {no_fall: true, velocity_rmse_max: 0.1}
+"""
+
+
+@pytest.mark.parametrize("cheat", ["CommandEraser", "VelocityFaker"])
+def test_in_process_controller_cannot_change_what_the_runner_records(write_scenario, cheat):
+    # A robot standing still under a 0.5 m/s command fails velocity tracking, whatever the controller
+    # does to the command and observation objects it was handed.
+    sc = _one(write_scenario(WALK))
+    honest = run_job(Job(sc, "joint-pd")).result
+    r = run_job(Job(sc, getattr(sealed_controllers, cheat)())).result
+    assert honest["status"] == "failed" and "velocity_rmse_max" in honest["reason"]
+    assert (r["status"], r["reason"], r["trace_sha256"]) == (honest["status"], honest["reason"],
+                                                            honest["trace_sha256"])
+
+
+def test_the_runner_refreshes_every_observation_field_into_the_controllers_copy():
+    import dataclasses
+
+    import numpy as np
+
+    from bench.controllers.base import Observation
+    from bench.sim.episode import _refresh_controller_copy
+
+    src = Observation.zeros(12, 4)
+    src.t = 1.25
+    for f in dataclasses.fields(Observation):
+        if f.name not in ("t", "privileged", "foot_contact"):
+            getattr(src, f.name)[:] = np.arange(1, 1 + getattr(src, f.name).size)
+    src.foot_contact[:] = [True, False, True, True]
+    src.privileged.base_pos[:] = (1, 2, 3)
+    src.privileged.base_linvel[:] = (4, 5, 6)
+    dst = Observation.zeros(12, 4)
+    assert _refresh_controller_copy(src, dst) is dst
+    for f in dataclasses.fields(Observation):
+        if f.name == "privileged":
+            for g in dataclasses.fields(type(src.privileged)):
+                assert np.array_equal(getattr(dst.privileged, g.name), getattr(src.privileged, g.name)), g.name
+        else:
+            assert np.array_equal(getattr(dst, f.name), getattr(src, f.name)), f.name
+    dst.joint_pos = np.zeros(3)   # broken by the controller: it gets a whole new copy
+    fresh = _refresh_controller_copy(src, dst)
+    assert fresh is not dst and np.array_equal(fresh.joint_pos, src.joint_pos)
+
+
 def test_in_process_controller_can_still_reach_the_simulation_known_limit(stand):
     # The documented limit of the in-process default: the episode loop is on the call stack.
     r = run_job(Job(stand, sealed_controllers.WorldGrabber())).result
