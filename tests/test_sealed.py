@@ -1,8 +1,8 @@
-"""Sealed mode (``sealed:NAME``) and the in-process manifest copy.
+"""Sealed mode (``sealed:NAME``) and what an in-process controller can and cannot change.
 
 In-process, a controller shares the episode's interpreter: the tests below show
-what that does and does not protect (its manifest is a private copy; the
-simulation is still reachable through the call stack). In sealed mode the
+what that does and does not protect (its manifest, observation and command are
+private copies; the simulation is still reachable through the call stack). In sealed mode the
 controller runs in a child process: it finds no simulation, its torques cross
 bit for bit, its stats come back, and a crash, a hang or the end of the bench
 process takes the child (and what it started) down.
