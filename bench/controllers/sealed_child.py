@@ -155,6 +155,13 @@ def _read_exact(fin, view: memoryview) -> bool:
     return True
 
 
+def _write_all(fout, data) -> None:
+    """Write all of ``data`` (an unbuffered pipe write may take only part of a long line)."""
+    view = memoryview(data).cast("B")
+    while view:
+        view = view[fout.write(view):]
+
+
 def _serve_binary(fin, fout, controller, J: int, F: int) -> None:
     from bench.controllers.base import Observation
 
@@ -165,13 +172,13 @@ def _serve_binary(fin, fout, controller, J: int, F: int) -> None:
     command = np.zeros(3)
     while _read_exact(fin, view):
         if row[0] == BYE_TICK:
-            fout.write(("STATS " + json.dumps(_stats(controller)) + "\n").encode())
+            _write_all(fout, ("STATS " + json.dumps(_stats(controller)) + "\n").encode())
             return
         k = unpack_observation(row, obs, command)
         tau = _call_step(controller, obs, command, k)
         answer[0] = k
         answer[1:] = _torques(tau, J, k, obs.t)
-        fout.write(memoryview(answer).cast("B"))
+        _write_all(fout, answer)
 
 
 def _serve_text(fin, fout, controller, J: int, F: int) -> None:
@@ -189,7 +196,7 @@ def _serve_text(fin, fout, controller, J: int, F: int) -> None:
             continue
         if parts[0] == b"BYE":
             stats = {k: v for k, v in _stats(controller).items() if k and not any(c.isspace() or c == "=" for c in k)}
-            fout.write(("STATS " + " ".join(f"{k}={v!r}" for k, v in stats.items()) + "\n").encode())
+            _write_all(fout, ("STATS " + " ".join(f"{k}={v!r}" for k, v in stats.items()) + "\n").encode())
             return
         if parts[0] != b"OBS" or len(parts) != len(row) + 1:
             raise _Stop(EXIT_BAD_INPUT, f"expected an OBS line of {len(row) - 1} numbers, got {line[:160]!r}")
@@ -200,7 +207,7 @@ def _serve_text(fin, fout, controller, J: int, F: int) -> None:
             raise _Stop(EXIT_BAD_INPUT, f"non-number in {line[:160]!r}") from None
         k = unpack_observation(row, obs, command)
         tau = _torques(_call_step(controller, obs, command, k), J, k, obs.t)
-        fout.write(("TAU %d " % k + " ".join(map(repr, tau.tolist())) + "\n").encode())
+        _write_all(fout, ("TAU %d " % k + " ".join(map(repr, tau.tolist())) + "\n").encode())
 
 
 class _ControllerRaised(Exception):
@@ -234,7 +241,7 @@ def serve(spec: str, fin, fout) -> int:
         traceback.print_exc()
         raise _ControllerRaised("while being made or in reset()", exc) from None
     binary = header.get("frames", "").strip() == FRAMES
-    fout.write(f"READY 1 {'frames=' + FRAMES + ' ' if binary else ''}sealed:{spec}\n".encode())
+    _write_all(fout, f"READY 1 {'frames=' + FRAMES + ' ' if binary else ''}sealed:{spec}\n".encode())
     J, F = robot.num_joints, robot.num_feet
     (_serve_binary if binary else _serve_text)(fin, fout, controller, J, F)
     return 0
