@@ -122,6 +122,8 @@ def test_unknown_controller_is_exit_2_with_did_you_mean(tmp_path, capsys):
     # the names that exist, all of them, not cut off
     assert "controllers that exist: " in err and "force-qp-l1" in err and "joint-pd" in err and "zero" in err
     assert not out.exists()
+    assert main(["run", str(tmp_path / "good.yaml"), "--controller", "sealed:force_qp", "--out", str(out)]) == 2
+    assert "did you mean 'sealed:force-qp'" in capsys.readouterr().err and not out.exists()
     assert main(["limit", str(tmp_path / "good.yaml"), "--vary", "duration", "--range", "0.2", "0.4",
                  "--controller", "force_qp", "--out", str(tmp_path / "lim")]) == 2
     assert "did you mean 'force-qp'" in capsys.readouterr().err and not (tmp_path / "lim").exists()

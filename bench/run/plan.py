@@ -98,13 +98,14 @@ def _unknown_controller_message(spec: str, registry_text: str) -> str:
         return registry_text
     if not registry_text.startswith("unknown controller"):
         return registry_text      # a module or entry point that cannot be loaded: its own reason
-    close = difflib.get_close_matches(spec.replace("_", "-"), names, n=3, cutoff=0.6)
+    prefix, bare = ("sealed:", spec[len("sealed:"):]) if spec.startswith("sealed:") else ("", spec)
+    close = difflib.get_close_matches(bare.replace("_", "-"), names, n=3, cutoff=0.6)
     text = f"unknown controller {spec!r}"
     if close:
-        text += f"; did you mean {', '.join(repr(c) for c in close)}?"
+        text += f"; did you mean {', '.join(repr(prefix + c) for c in close)}?"
     text += (f"\ncontrollers that exist: {', '.join(names) or 'none'}"
-             "\nor give package.module:attribute, or exec:PROGRAM ARGS for an external program"
-             " (bench list controllers describes each)")
+             "\nor give package.module:attribute, exec:PROGRAM ARGS for an external program, or sealed:NAME"
+             " for a Python controller in a child process (bench list controllers describes each)")
     return text
 
 
