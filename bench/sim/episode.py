@@ -42,6 +42,7 @@ import mujoco
 import numpy as np
 
 from bench.controllers.base import Observation
+from bench.sim.interrupts import UserInterrupts, raised_reason
 from bench.sim.events import Event, compile_forces, compile_masses, fault_events
 from bench.sim.trace import Trace
 from bench.world.payloads import PAYLOAD_CONTYPE, PAYLOAD_RGBA
@@ -106,6 +107,10 @@ class _Watchdog:
         self.active = False
         self.period_s = 0.0
         self._previous = None
+        self.handler = self._on_alarm   # the one bound method installed, so that ``is`` can check it
+        self.last_alarm = 0.0           # perf_counter of the latest alarm, to notice a timer stopped or blocked
+        self.stale_s = math.inf
+        self.restored: list[str] = []   # what a controller changed and the watchdog put back
 
     def start(self) -> bool:
         limit = min(self.tick_limit_s, self.deadline - time.perf_counter())
@@ -119,12 +124,43 @@ class _Watchdog:
             if signal.getitimer(signal.ITIMER_REAL)[0] > 0:
                 return False
             self.period_s = min(max(limit * WATCH_FRACTION, WATCH_PERIOD_MIN_S), WATCH_PERIOD_MAX_S)
-            self._previous = signal.signal(signal.SIGALRM, self._on_alarm)
+            self._previous = signal.signal(signal.SIGALRM, self.handler)
             signal.setitimer(signal.ITIMER_REAL, self.period_s, self.period_s)
         except (ValueError, OSError):  # not the main interpreter, or the platform refuses
             return False
+        self.last_alarm = time.perf_counter()
+        # Alarms run between bytecodes: a long physics step can delay one, so "stale" is several periods,
+        # and a stale timer is only suspected until ``check`` has looked at the real state.
+        self.stale_s = 4 * self.period_s + 0.05
         self.active = True
         return True
+
+    def check(self, now: float, where: str) -> None:
+        """After a controller call: put back the handler, the timer and the signal mask if the call changed them.
+
+        The controller runs in this process and could otherwise switch the watchdog off (its own
+        ``SIGALRM`` handler, ``setitimer(ITIMER_REAL, 0)``, ``SIGALRM`` blocked). A call that does so
+        and then hangs is past this check; the executor's deadline kill is the backstop for that.
+        """
+        if signal.getsignal(signal.SIGALRM) is self.handler and now - self.last_alarm <= self.stale_s:
+            return
+        changed = []
+        try:
+            if signal.getsignal(signal.SIGALRM) is not self.handler:
+                signal.signal(signal.SIGALRM, self.handler)
+                changed.append("SIGALRM handler replaced")
+            if abs(signal.getitimer(signal.ITIMER_REAL)[1] - self.period_s) > 1e-5:
+                changed.append("timer stopped or changed")
+            if hasattr(signal, "pthread_sigmask") and signal.SIGALRM in signal.pthread_sigmask(signal.SIG_BLOCK, []):
+                signal.pthread_sigmask(signal.SIG_UNBLOCK, [signal.SIGALRM])
+                changed.append("SIGALRM blocked")
+            if changed:
+                signal.setitimer(signal.ITIMER_REAL, self.period_s, self.period_s)
+        except (ValueError, OSError):
+            return
+        self.last_alarm = now
+        if changed and len(self.restored) < MAX_WARNING_MESSAGES:
+            self.restored.append(f"{where}: {', '.join(changed)}; the bench's watchdog was put back")
 
     def stop(self) -> None:
         if not self.active:
@@ -136,9 +172,10 @@ class _Watchdog:
 
     def _on_alarm(self, signum, frame) -> None:
         start = self.call_start
+        self.last_alarm = time.perf_counter()
         if not start:
             return  # between calls: physics and bookkeeping are never interrupted
-        now = time.perf_counter()
+        now = self.last_alarm
         # Raised again at every alarm while the call goes on, so a controller that swallows it
         # (a bare ``except:``) is interrupted again. The runner clears call_start first thing after
         # catching it, well within one period (>= 5 ms).
@@ -235,6 +272,7 @@ class EpisodeResult:
     controller_stats: dict = field(default_factory=dict)
     mujoco_warnings: list[str] = field(default_factory=list)   # MuJoCo's messages, fatal or not
     interruptible: bool = False                                # whether the watchdog could run
+    watchdog_restored: list[str] = field(default_factory=list)  # watchdog state a controller changed, put back
 
 
 def _quat_to_mat(q: np.ndarray, out: np.ndarray) -> np.ndarray:
@@ -288,14 +326,15 @@ def run_episode(world, scenario, controller, robot, *, seed: int | None = None,
     deadline = math.inf if ep_limit is None or ep_limit <= 0 else t_start + float(ep_limit)
     watchdog = _Watchdog(limits.tick_timeout_s, deadline)
     captured: list[str] = []
-    with _CaptureMujocoWarnings(captured):
+    with _CaptureMujocoWarnings(captured), UserInterrupts() as user:
         interruptible = watchdog.start()
         try:
-            ep = _run_episode(world, scenario, controller, robot, seed, limits, watchdog, captured)
+            ep = _run_episode(world, scenario, controller, robot, seed, limits, watchdog, captured, user)
         finally:
             watchdog.stop()
     ep.mujoco_warnings = captured
     ep.interruptible = interruptible
+    ep.watchdog_restored = watchdog.restored
     return ep
 
 
@@ -308,7 +347,7 @@ def _timeout_reason(hung: _ControllerHung, limits: EpisodeLimits, where: str) ->
 
 
 def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits, watchdog: _Watchdog,
-                 captured: list[str]) -> EpisodeResult:
+                 captured: list[str], user: UserInterrupts) -> EpisodeResult:
     seed = int(scenario.seed if seed is None else seed)
     m = world.model
     d = mujoco.MjData(m)
@@ -401,10 +440,14 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
         watchdog.call_start = 0.0
         return EpisodeResult(trace.__class__({k: v[:0] for k, v in A.items()}), "timeout",
                              _timeout_reason(hung, limits, "in reset()"), 0.0, time.perf_counter() - c0, events)
-    except Exception as exc:  # noqa: BLE001 - a fault of the controller, reported as such
+    except BaseException as exc:  # noqa: BLE001 - SystemExit, KeyboardInterrupt... of the controller: its fault
         watchdog.call_start = 0.0
+        if user.by_user(exc):
+            raise
         return EpisodeResult(trace.__class__({k: v[:0] for k, v in A.items()}), "error",
-                             f"controller raised {type(exc).__name__} in reset(): {exc}", 0.0, 0.0, events)
+                             raised_reason(exc, "in reset()"), 0.0, 0.0, events)
+    if watchdog.active:
+        watchdog.check(time.perf_counter(), "in reset()")
     if time.perf_counter() > watchdog.deadline:
         return EpisodeResult(trace.__class__({k: v[:0] for k, v in A.items()}), "timeout",
                              f"episode exceeded the wall-clock limit of {limits.episode_timeout_s:g} s in reset() "
@@ -497,13 +540,17 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 ctrl_ms[k] = (time.perf_counter() - c0) * 1e3
                 status, reason = "timeout", _timeout_reason(hung, limits, f"at tick {k} (t={t:.3f} s)")
                 break
-            except Exception as exc:  # noqa: BLE001
+            except BaseException as exc:  # noqa: BLE001 - SystemExit, KeyboardInterrupt... of the controller
                 watchdog.call_start = 0.0
+                if user.by_user(exc):
+                    raise
                 status = "timeout" if isinstance(exc, TimeoutError) else "error"   # e.g. an external program's wait
-                reason = f"controller raised {type(exc).__name__} at tick {k} (t={t:.3f} s): {exc}"
+                reason = raised_reason(exc, f"at tick {k} (t={t:.3f} s)")
                 break
             c1 = time.perf_counter()
             ctrl_ms[k] = (c1 - c0) * 1e3
+            if watchdog.active:
+                watchdog.check(c1, f"tick {k} (t={t:.3f} s)")
             if c1 - c0 > tick_limit_s:
                 status, reason = "timeout", (f"controller took {c1 - c0:.2f} s at tick {k} (t={t:.3f} s), "
                                              f"over the per-tick limit of {tick_limit_s:g} s")
@@ -516,6 +563,11 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 tau = np.asarray(tau, dtype=float)
             except (TypeError, ValueError) as exc:
                 status, reason = "error", f"controller returned a non-numeric value at tick {k} (t={t:.3f} s): {exc}"
+                break
+            except BaseException as exc:  # noqa: BLE001 - the returned object's own code (__array__, __float__)
+                if user.by_user(exc):
+                    raise
+                status, reason = "error", raised_reason(exc, f"converting its torques at tick {k} (t={t:.3f} s)")
                 break
             if tau.shape != (J,):
                 what = "None" if tau.shape == () and math.isnan(float(tau)) else f"torques of shape {tau.shape}"
@@ -591,11 +643,27 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
         A = trace.arrays
         A["terrain_height"][:] = world.terrain.height_at(A["base_pos"][:, 0], A["base_pos"][:, 1])
     stats = {}
-    if hasattr(controller, "stats"):
-        try:
+    watchdog.call_limit_s = watchdog.tick_limit_s
+    c0 = watchdog.call_start = time.perf_counter()
+    try:
+        if hasattr(controller, "stats"):
             stats = {str(a): float(b) for a, b in dict(controller.stats()).items()}
-        except Exception:  # noqa: BLE001 - optional and informative only
-            stats = {}
+        watchdog.call_start = 0.0
+    except _ControllerHung as hung:
+        watchdog.call_start = 0.0
+        stats = {}
+        if status not in ("error", "timeout"):
+            status, reason = "timeout", _timeout_reason(hung, limits, "in stats()")
+    except Exception:  # noqa: BLE001 - optional and informative only
+        watchdog.call_start = 0.0
+        stats = {}
+    except BaseException as exc:  # noqa: BLE001 - SystemExit, KeyboardInterrupt...: the controller's fault
+        watchdog.call_start = 0.0
+        if user.by_user(exc):
+            raise
+        stats = {}
+        if status not in ("error", "timeout"):
+            status, reason = "error", raised_reason(exc, "in stats()")
     trace.meta.update({
         "nominal_height": float(world.robot.nominal_height),
         "control_dt": ctrl_dt,
