@@ -43,6 +43,9 @@ PRELOAD = ("bench.execute.job",)
 #: Seconds past a job's wall-clock limit before the parent kills its worker (covers building the world before
 #: the episode's clock starts, and scoring and sending the result after it stops).
 KILL_GRACE_S = 5.0
+#: Wait for a worker to start and unpack its job (the fork server may be starting too), s, before the job's own
+#: limit applies.
+START_GRACE_S = 120.0
 #: Wait for a killed or retired worker to go, s.
 JOIN_TIMEOUT_S = 5.0
 
@@ -71,6 +74,7 @@ def _worker_main(conn) -> None:
         if msg is None:
             return
         fn, job = msg
+        conn.send(("started",))   # the job's wall-clock limit runs from here, not from a slow worker start
         try:
             reply = ("ok", fn(job))
         except BaseException as exc:  # noqa: BLE001 - SystemExit and the like end the job, not the worker
@@ -167,6 +171,7 @@ class _Worker:
         self.index: int | None = None    # job held (index into the current map's jobs)
         self.kill_at = float("inf")      # time.monotonic() past which the worker is killed
         self.limit_s: float | None = None
+        self.started = False             # the worker said it has the job and runs it
         self.tasks = 0
 
     def kill(self) -> None:
@@ -297,8 +302,9 @@ class ProcessExecutor:
                     continue
                 del data
                 limit = self.deadline_of(jobs[i])
-                w.index, w.limit_s = i, limit
-                w.kill_at = time.monotonic() + limit + self.kill_grace_s if limit is not None else float("inf")
+                w.index, w.limit_s, w.started = i, limit, False
+                w.kill_at = (time.monotonic() + START_GRACE_S + limit + self.kill_grace_s if limit is not None
+                             else float("inf"))
                 self._busy.append(w)
                 mine.append(w)
             if not mine:
@@ -325,6 +331,11 @@ class ProcessExecutor:
                         msg = w.conn.recv()   # a whole message: the worker is writing it
                 except (EOFError, OSError):
                     msg = None
+                if msg is not None and msg[0] == "started":
+                    w.started = True
+                    if w.limit_s is not None:
+                        w.kill_at = now + w.limit_s + self.kill_grace_s
+                    continue
                 mine.remove(w)
                 if msg is None:   # the pipe closed or the process ended without an answer
                     w.process.join(JOIN_TIMEOUT_S)

@@ -108,8 +108,8 @@ class _Watchdog:
         self.period_s = 0.0
         self._previous = None
         self.handler = self._on_alarm   # the one bound method installed, so that ``is`` can check it
-        self.last_alarm = 0.0           # perf_counter of the latest alarm, to notice a timer stopped or blocked
-        self.stale_s = math.inf
+        self.checked_at = 0.0           # perf_counter of the latest ``check``
+        self.interval_s = 0.0
         self.restored: list[str] = []   # what a controller changed and the watchdog put back
 
     def start(self) -> bool:
@@ -128,28 +128,27 @@ class _Watchdog:
             signal.setitimer(signal.ITIMER_REAL, self.period_s, self.period_s)
         except (ValueError, OSError):  # not the main interpreter, or the platform refuses
             return False
-        self.last_alarm = time.perf_counter()
-        # Alarms run between bytecodes: a long physics step can delay one, so "stale" is several periods,
-        # and a stale timer is only suspected until ``check`` has looked at the real state.
-        self.stale_s = 4 * self.period_s + 0.05
+        self.interval_s = signal.getitimer(signal.ITIMER_REAL)[1]   # as the system rounded it, for ``check``
+        self.checked_at = time.perf_counter()
         self.active = True
         return True
 
     def check(self, now: float, where: str) -> None:
-        """After a controller call: put back the handler, the timer and the signal mask if the call changed them.
+        """After a controller call: put back the handler, the timer and the signal mask if a call changed them.
 
-        The controller runs in this process and could otherwise switch the watchdog off (its own
-        ``SIGALRM`` handler, ``setitimer(ITIMER_REAL, 0)``, ``SIGALRM`` blocked). A call that does so
-        and then hangs is past this check; the executor's deadline kill is the backstop for that.
+        The controller runs in this process and could otherwise switch the watchdog off for good
+        (its own ``SIGALRM`` handler, ``setitimer(ITIMER_REAL, 0)``, ``SIGALRM`` blocked). The runner
+        calls this at most once per watchdog period (a few microseconds each time, nothing on the
+        other ticks), so the watchdog is back within one period. A call that switches the watchdog
+        off and then hangs is past this check; the executor's deadline kill is the backstop for that.
         """
-        if signal.getsignal(signal.SIGALRM) is self.handler and now - self.last_alarm <= self.stale_s:
-            return
+        self.checked_at = now
         changed = []
         try:
             if signal.getsignal(signal.SIGALRM) is not self.handler:
                 signal.signal(signal.SIGALRM, self.handler)
                 changed.append("SIGALRM handler replaced")
-            if abs(signal.getitimer(signal.ITIMER_REAL)[1] - self.period_s) > 1e-5:
+            if signal.getitimer(signal.ITIMER_REAL)[1] != self.interval_s:
                 changed.append("timer stopped or changed")
             if hasattr(signal, "pthread_sigmask") and signal.SIGALRM in signal.pthread_sigmask(signal.SIG_BLOCK, []):
                 signal.pthread_sigmask(signal.SIG_UNBLOCK, [signal.SIGALRM])
@@ -158,7 +157,6 @@ class _Watchdog:
                 signal.setitimer(signal.ITIMER_REAL, self.period_s, self.period_s)
         except (ValueError, OSError):
             return
-        self.last_alarm = now
         if changed and len(self.restored) < MAX_WARNING_MESSAGES:
             self.restored.append(f"{where}: {', '.join(changed)}; the bench's watchdog was put back")
 
@@ -172,10 +170,9 @@ class _Watchdog:
 
     def _on_alarm(self, signum, frame) -> None:
         start = self.call_start
-        self.last_alarm = time.perf_counter()
         if not start:
             return  # between calls: physics and bookkeeping are never interrupted
-        now = self.last_alarm
+        now = time.perf_counter()
         # Raised again at every alarm while the call goes on, so a controller that swallows it
         # (a bare ``except:``) is interrupted again. The runner clears call_start first thing after
         # catching it, well within one period (>= 5 ms).
@@ -447,7 +444,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
         return EpisodeResult(trace.__class__({k: v[:0] for k, v in A.items()}), "error",
                              raised_reason(exc, "in reset()"), 0.0, 0.0, events)
     if watchdog.active:
-        watchdog.check(time.perf_counter(), "in reset()")
+        watchdog.check(time.perf_counter(), "reset()")
     if time.perf_counter() > watchdog.deadline:
         return EpisodeResult(trace.__class__({k: v[:0] for k, v in A.items()}), "timeout",
                              f"episode exceeded the wall-clock limit of {limits.episode_timeout_s:g} s in reset() "
@@ -549,7 +546,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 break
             c1 = time.perf_counter()
             ctrl_ms[k] = (c1 - c0) * 1e3
-            if watchdog.active:
+            if c1 - watchdog.checked_at > watchdog.period_s and watchdog.active:
                 watchdog.check(c1, f"tick {k} (t={t:.3f} s)")
             if c1 - c0 > tick_limit_s:
                 status, reason = "timeout", (f"controller took {c1 - c0:.2f} s at tick {k} (t={t:.3f} s), "
