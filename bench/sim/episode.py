@@ -9,17 +9,27 @@ contact forces all belong to the same instant; the other substeps are plain
 a controller fault or timeout; each becomes a status with a reason, never an
 exception that unwinds the run.
 
-Hung controllers: on the main thread of a process (``bench run`` with one
-worker, and every worker process of ``--workers N``) a watchdog timer
-(``SIGALRM`` every ``WATCH_FRACTION`` of the smallest limit) interrupts a
+Hung controllers: on the main thread of a process (every worker process of
+``bench run``, and the bench's own process with ``--in-process``) a watchdog
+timer (``SIGALRM`` every ``WATCH_FRACTION`` of the smallest limit) interrupts a
 controller call that has run past the per-tick limit, or past the episode's
 wall-clock deadline, by raising a private exception inside it; the episode ends
 as ``timeout`` naming the tick and time. It costs one attribute write per call
-(the timer is set once per episode, not per tick). Elsewhere (another thread,
-such as a Dask worker's, or when the process already uses ``SIGALRM``) each call
-is measured after it returns instead. Code stuck inside a C call that never
-returns cannot be interrupted in-process (Python runs signal handlers between
-bytecodes); a controller program behind ``exec:`` has its own timeout.
+(the timer is set once per episode, not per tick). Once per watchdog period,
+after a call, it checks that the controller has not replaced its handler,
+stopped its timer or blocked ``SIGALRM``, and puts them back if so (listed in
+``EpisodeResult.watchdog_restored``). Elsewhere (another thread, such as a Dask
+worker's, or when the process already uses ``SIGALRM``) each call is measured
+after it returns instead. Code stuck inside a C call that never returns cannot
+be interrupted in-process (Python runs signal handlers between bytecodes), nor
+can a call that switches the watchdog off and then hangs: the process executor
+kills such a worker past the episode's deadline; a controller program behind
+``exec:`` has its own timeout.
+
+Whatever a controller raises in ``reset``, ``step`` or ``stats`` (``SystemExit``,
+``KeyboardInterrupt``, ``GeneratorExit``, any ``BaseException``) ends its
+episode as ``error`` with the exception and the tick; only the user's own Ctrl-C
+goes through (see :mod:`bench.sim.interrupts`).
 
 MuJoCo's warnings are captured while an episode runs (MuJoCo's own message
 text, instead of its default of printing and writing ``MUJOCO_LOG.TXT`` into
