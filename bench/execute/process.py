@@ -279,6 +279,7 @@ class ProcessExecutor:
     def _map(self, fn: Callable, jobs: list, on_error: OnError | None,
              mine: list[_Worker]) -> Iterator[tuple[int, object]]:
         todo = collections.deque(range(len(jobs)))
+        resent: set[int] = set()   # jobs whose worker died before it said it had started them
 
         def fail(i: int, reason: str, status: str = "error"):
             if on_error is None:
@@ -341,6 +342,10 @@ class ProcessExecutor:
                     w.process.join(JOIN_TIMEOUT_S)
                     code = w.process.exitcode
                     self._drop(w, kill=code is None)
+                    if not w.started and i not in resent:   # it died before taking the job (e.g. while idle)
+                        resent.add(i)
+                        todo.appendleft(i)
+                        continue
                     yield i, fail(i, death_reason(code))
                 elif msg[0] == "ok":
                     self._release(w)
