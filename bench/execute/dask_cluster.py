@@ -34,8 +34,11 @@ from bench.execute.executors import ExecutorError, OnError, default_workers, des
 #: Tries of one episode whose worker died (the first death may have been a neighbour's fault).
 MAX_TRIES = 2
 CONNECT_TIMEOUT_S = 15
-#: How often the deadlines of running episodes are looked at while none has finished, s.
-POLL_S = 0.05
+#: With no worker connected for this long, the episodes not finished become errors: a scheduler
+#: holds tasks for workers that may come back, so without this the run would wait forever.
+NO_WORKER_TIMEOUT_S = 60.0
+#: How often a wait for results looks whether any worker is left.
+WORKER_POLL_S = 1.0
 
 
 def _import_distributed():
@@ -153,12 +156,19 @@ class DaskExecutor:
                 if not ac.count() - len(abandoned):
                     submit_more()
                     continue
-                if not ac.has_ready():
-                    overdue = self._overdue(kill_at, abandoned)
-                    if overdue is None:
-                        time.sleep(POLL_S)
-                        continue
-                    key, wall = overdue
+                waited = self._wait_ready(ac, kill_at, abandoned)
+                if waited is None:
+                    reason = (f"no Dask worker was left on {self.address} for {NO_WORKER_TIMEOUT_S:g} s "
+                              f"(the last one was lost); the episode did not finish")
+                    if on_error is None:
+                        raise ExecutorError(reason)
+                    for fut in list(ac.futures):
+                        fut.cancel()
+                    for i in [index.pop(k) for k in list(index)] + list(todo):
+                        yield i, on_error(jobs[i], reason)
+                    return
+                if waited != "ready":   # an episode past its deadline; its worker was restarted
+                    key, wall = waited
                     i = index.pop(key)
                     reason = (f"the episode ran past its wall-clock limit of {wall:g} s by more than "
                               f"{self.kill_grace_s:g} s without returning, so its Dask worker was restarted "
@@ -219,6 +229,33 @@ class DaskExecutor:
                 pass
             return key, wall
         return None
+
+    def _wait_ready(self, ac, kill_at: dict, abandoned: set):
+        """Wait until a result is ready: ``"ready"``; or an episode is past its deadline (its worker is then
+        restarted): ``(key, limit_s)``; or no worker has been connected for NO_WORKER_TIMEOUT_S: None."""
+        alone_since = None
+        next_look = time.monotonic() + WORKER_POLL_S
+        while not ac.has_ready():
+            if kill_at:
+                overdue = self._overdue(kill_at, abandoned)
+                if overdue is not None:
+                    return overdue
+            time.sleep(0.01)
+            now = time.monotonic()
+            if now < next_look:
+                continue
+            next_look = now + WORKER_POLL_S
+            try:
+                workers = len(self.client.nthreads())
+            except Exception:  # noqa: BLE001 - the scheduler itself is gone: no worker either
+                workers = 0
+            if workers:
+                alone_since = None
+            elif alone_since is None:
+                alone_since = now
+            elif now - alone_since >= NO_WORKER_TIMEOUT_S:
+                return None
+        return "ready"
 
     def close(self) -> None:
         client, self.client = getattr(self, "client", None), None
