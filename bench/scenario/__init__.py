@@ -7,7 +7,8 @@ Public API:
 - `scenario_id(name, variant)`, `scenario_slug(id)`
 - `scenario_json_schema()`
 - `get_path` / `set_path` / `resolve_path` (dotted paths into a raw document)
-- the schema dataclasses (`Scenario`, `RobotRef`, terrain, payload, disturbance, fault, command classes)
+- the schema dataclasses (`Scenario`, `RobotRef`, terrain, payload, disturbance, command classes; fault
+  kinds are in `bench.faults`, `FAULT_KINDS` is a live view of that registry)
 """
 
 from bench.errors import ScenarioError, ScenarioErrors
@@ -24,14 +25,10 @@ from bench.scenario.schema import (
     Blocks,
     Choice,
     Command,
-    Derate,
     Drain,
     FrictionPatch,
     Ground,
     Initial,
-    Latency,
-    Limp,
-    Lock,
     MassStep,
     Payload,
     Push,
@@ -39,8 +36,6 @@ from bench.scenario.schema import (
     RobotRef,
     Rough,
     Scenario,
-    SensorFreeze,
-    SensorNoise,
     Slope,
     SoftPatch,
     Stairs,

@@ -121,6 +121,8 @@ class Validator:
     def convert(self, tp: Any, raw: Any, path: tuple, meta: dict) -> Any:
         if tp is Any:
             return copy.deepcopy(raw)
+        if tp in schema.UNIONS and not is_union(tp):   # a one-key item whose kinds come from a registry
+            return self._one_key(schema.UNIONS[tp], raw, path)
         if is_union(tp):
             return self._union(tp, raw, path, meta)
         origin = get_origin(tp)

@@ -1,0 +1,198 @@
+"""The fault-kind registry: one table, name -> `FaultKind`, for validation, world building and the episode.
+
+A fault kind is one module (the built-ins are `bench.faults.<kind>`) that
+declares, in one place:
+
+- ``schema``: a frozen dataclass declared with `bench.scenario.fields.spec`,
+  with a class attribute ``kind`` equal to its name and a field ``at`` (the
+  switch-on time, s). The scenario stage validates and documents it; it must
+  import no MuJoCo. Optional methods: ``label()`` (the event caption) and
+  ``joint_refs()`` (``(relative field path, joint name)`` pairs that the robot
+  checks confirm against the manifest).
+- ``compile(items, ctx) -> Effect | None``: run once per episode by the sim
+  stage with every fault of this kind as ``(index in faults:, fault)`` pairs and
+  a `FaultContext`; the returned `Effect` is what acts per tick.
+- ``build_world(items, ctx)`` (optional): run by the world stage before the
+  model is compiled, to add what the fault needs to the ``MjSpec``.
+
+Kinds are found through the entry point group ``bench.faults`` (each entry
+point names a `FaultKind` object; the built-ins are registered there by this
+package's own ``pyproject.toml``, exactly as a user's would be) and through
+`register_fault_kind` for a kind defined in-process.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections.abc import Iterable, Iterator, Mapping
+from dataclasses import dataclass
+from importlib.metadata import entry_points
+from typing import Any, Callable
+
+ENTRY_POINT_GROUP = "bench.faults"
+
+
+class Effect:
+    """What a kind's compile step returns; the episode calls only the hooks whose flag is set.
+
+    ``switch_ticks()`` lists the control ticks at which ``switch(k)`` runs (at the start of the tick,
+    before the physics step): that is where an effect turns itself on and sets its flags. While
+    ``observing``, ``observe(obs)`` runs every tick on the controller's observation (after the true
+    state is recorded); while ``commanding``, ``command(k, tau) -> tau`` on the controller's torques
+    before the torque limits; while ``applying``, ``apply(applied)`` on the limited torques, in place.
+    With no flag set an effect costs nothing per tick. Effects of one phase run in ``order`` (lower
+    first), then in the order of their first fault in the scenario.
+    """
+
+    order: int = 100
+    observing: bool = False
+    commanding: bool = False
+    applying: bool = False
+
+    def switch_ticks(self) -> Iterable[int]:
+        return ()
+
+    def switch(self, k: int) -> None:
+        """Turn on what is due at tick ``k``."""
+
+    def observe(self, obs: Any) -> None:
+        """Change the controller's observation in place."""
+
+    def command(self, k: int, tau: Any) -> Any:
+        return tau
+
+    def apply(self, applied: Any) -> None:
+        """Change the torques about to be applied, in place."""
+
+
+@dataclass
+class FaultContext:
+    """What a compile step may use: the compiled world, this episode's data and its schedules.
+
+    ``limit_now`` is the torque limit array the episode clips to (change it in place); ``rng`` is the
+    episode's generator for sensor faults (draws must stay in tick order to be reproducible).
+    """
+
+    model: Any
+    data: Any
+    world: Any
+    ctrl_dt: float
+    n_ticks: int
+    joint_index: dict[str, int]
+    nominal_limits: Any
+    limit_now: Any
+    rng: Any
+
+    def first_tick(self, at: float) -> int:
+        """The first control tick ``k`` with ``k * ctrl_dt >= at`` (the episode's clock), or ``n_ticks``."""
+        k = max(int(math.floor(at / self.ctrl_dt)) - 1, 0)
+        while k * self.ctrl_dt < at:
+            k += 1
+        return min(k, self.n_ticks)
+
+
+@dataclass
+class WorldContext:
+    """What a world step may use: the robot's ``MjSpec`` before compiling, and the scenario."""
+
+    spec: Any
+    scenario: Any
+
+
+@dataclass(frozen=True)
+class FaultKind:
+    """One fault kind: its schema (scenario stage), world step and compile step (see the module docstring)."""
+
+    schema: type
+    compile: Callable[[list, FaultContext], Effect | None]
+    build_world: Callable[[list, WorldContext], None] | None = None
+
+    @property
+    def name(self) -> str:
+        return self.schema.kind
+
+
+_in_process: dict[str, FaultKind] = {}
+_from_entry_points: dict[str, FaultKind] | None = None
+#: Entry points that could not be loaded: name -> why (shown as a hint when a scenario names one).
+load_errors: dict[str, str] = {}
+
+
+def _check(kind: Any, where: str) -> FaultKind:
+    if not isinstance(kind, FaultKind):
+        raise TypeError(f"{where}: expected a bench.faults.FaultKind, got {type(kind).__name__}")
+    cls = kind.schema
+    if not (dataclasses.is_dataclass(cls) and isinstance(getattr(cls, "kind", None), str)):
+        raise TypeError(f"{where}: the schema must be a dataclass with a class attribute 'kind'")
+    if "at" not in {f.name for f in dataclasses.fields(cls)}:
+        raise TypeError(f"{where}: fault kind {cls.kind!r} has no field 'at' (its switch-on time)")
+    return kind
+
+
+def _load_entry_points() -> dict[str, FaultKind]:
+    global _from_entry_points
+    if _from_entry_points is None:
+        found: dict[str, FaultKind] = {}
+        try:
+            eps = list(entry_points(group=ENTRY_POINT_GROUP))
+        except Exception:  # noqa: BLE001 - broken package metadata must not break loading scenarios
+            eps = []
+        for ep in eps:
+            try:
+                kind = _check(ep.load(), f"entry point {ep.name!r} ({ep.value})")
+            except Exception as exc:  # noqa: BLE001 - a broken plugin is reported where it is named
+                load_errors[ep.name] = f"{type(exc).__name__}: {exc}"
+                continue
+            if kind.name != ep.name:
+                load_errors[ep.name] = f"entry point {ep.name!r} names kind {kind.name!r}"
+                continue
+            found[ep.name] = kind
+        _from_entry_points = found
+    return _from_entry_points
+
+
+def register_fault_kind(kind: FaultKind) -> FaultKind:
+    """Make ``kind`` available to scenarios in this process (replaces a kind of the same name)."""
+    _in_process[_check(kind, "register_fault_kind").name] = kind
+    return kind
+
+
+def unregister_fault_kind(name: str) -> None:
+    _in_process.pop(name, None)
+
+
+def fault_kinds() -> dict[str, FaultKind]:
+    """Every registered kind by name: entry points, then in-process registrations (which win)."""
+    return {**_load_entry_points(), **_in_process}
+
+
+def fault_kind(name: str) -> FaultKind:
+    kind = fault_kinds().get(name)
+    if kind is None:
+        raise KeyError(f"unknown fault kind {name!r}")
+    return kind
+
+
+class SchemaTable(Mapping):
+    """A live view kind name -> schema class (what the validator and the JSON Schema read)."""
+
+    def __getitem__(self, name: str) -> type:
+        return fault_kinds()[name].schema
+
+    def __iter__(self) -> Iterator[str]:
+        return iter(fault_kinds())
+
+    def __len__(self) -> int:
+        return len(fault_kinds())
+
+    def __repr__(self) -> str:
+        return f"SchemaTable({list(self)})"
+
+
+def group_by_kind(faults: Iterable[Any]) -> list[tuple[FaultKind, list[tuple[int, Any]]]]:
+    """The faults of a scenario as ``(kind, [(index, fault), ...])``, kinds in order of first appearance."""
+    groups: dict[str, list[tuple[int, Any]]] = {}
+    for i, f in enumerate(faults):
+        groups.setdefault(f.kind, []).append((i, f))
+    return [(fault_kind(name), items) for name, items in groups.items()]
