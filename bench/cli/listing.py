@@ -32,10 +32,13 @@ def run(args) -> int:
         for info in available():
             print(f"{info.name:<16} {info.description}")
     elif args.what == "criteria":
-        from bench.scoring.criteria import available
+        from bench.scenario.criteria import all_criteria, criterion_names, load_errors
 
-        for name, crit in sorted(available().items()):
-            print(f"{name:<24} {getattr(crit, 'description', '')}")
+        loaded = all_criteria()
+        for name in criterion_names():
+            crit = loaded.get(name)
+            text = getattr(crit, "description", "") if crit is not None else f"(cannot be loaded: {load_errors.get(name)})"
+            print(f"{name:<24} {text}")
     else:
         from bench.cli.common import load_or_report
 

@@ -23,10 +23,14 @@ from __future__ import annotations
 import dataclasses
 import math
 from collections.abc import Iterator, Mapping
-from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, ClassVar, Literal, Union
 
+from bench.faults.registry import SchemaTable
+from bench.faults.sensors import SENSORS  # noqa: F401 - re-exported
+from bench.scenario import criteria as criteria_registry
+from bench.scenario.criteria import all_criteria, criterion_names, get_criterion, unit_of
+from bench.scenario.fields import AT as _AT
 from bench.scenario.fields import (  # noqa: F401 - re-exported: the schema's declaration vocabulary
     MAX_DURATION_S,
     MAX_HFIELD_CELLS,
@@ -36,9 +40,6 @@ from bench.scenario.fields import (  # noqa: F401 - re-exported: the schema's de
     spec,
 )
 from bench.scenario.fields import frozen as _frozen
-from bench.scenario.fields import AT as _AT
-from bench.faults.registry import SchemaTable
-from bench.faults.sensors import SENSORS  # noqa: F401 - re-exported
 
 Vec3 = tuple[float, float, float]
 Range2 = tuple[float, float]
@@ -433,65 +434,12 @@ def _commands_sorted(items: list[tuple[int, Any]]) -> Iterator[Problem]:
 # --------------------------------------------------------------------------- criteria
 
 
-@dataclass(frozen=True)
-class CriterionInfo:
-    name: str
-    boolean: bool
-    doc: str
-    ge: float | None = 0.0
-    le: float | None = None
-    unit: str | None = None
-
-
 #: Default start of the scoring window, s (skips the first settling of the stance).
 DEFAULT_SCORE_FROM_S = 0.5
 
-#: Criterion names a scenario may use: the built-ins below, plus every name in the entry point
-#: group ``bench.criteria`` (read from package metadata, nothing imported), plus `register_criterion`.
-CRITERIA: dict[str, CriterionInfo] = {}
-
-
-def register_criterion(name: str, *, boolean: bool = False, doc: str = "", ge: float | None = 0.0,
-                       le: float | None = None, unit: str | None = None) -> None:
-    """Make `name` a valid key of `criteria:` (boolean ones take `true`, others a limit)."""
-    CRITERIA[name] = CriterionInfo(name, boolean, doc, ge, le, unit)
-
-
-for _name, _bool, _doc, _le, _unit in (
-    ("no_fall", True, "the trunk/thighs never touch the ground", None, None),
-    ("height_error_max", False, "max |trunk height - nominal height|", None, "m"),
-    ("height_error_rms", False, "RMS trunk height error", None, "m"),
-    ("roll_error_max_deg", False, "max |roll|", 180.0, "deg"),
-    ("pitch_error_max_deg", False, "max |pitch| of the trunk against level", 180.0, "deg"),
-    ("roll_error_mean_deg", False, "mean |roll|", 180.0, "deg"),
-    ("pitch_error_mean_deg", False, "mean |pitch| of the trunk against level", 180.0, "deg"),
-    ("drift_max", False, "max horizontal drift from the start while commanded to stand", None, "m"),
-    ("distance_min", False, "net horizontal distance travelled, at least", None, "m"),
-    ("velocity_rmse_max", False, "RMS error of heading-frame velocity vs command, once settled", None, "m/s"),
-    ("yaw_rate_rmse_max", False, "RMS error of yaw rate vs command", None, "rad/s"),
-    ("torque_saturation_max", False, "fraction of ticks with any joint at its torque limit", 1.0, None),
-    ("controller_p99_ms_max", False, "99th percentile controller compute time", None, "ms"),
-    ("pass_rate_min", False, "fraction of trials that pass", 1.0, None),
-):
-    register_criterion(_name, boolean=_bool, doc=_doc, le=_le, unit=_unit)
-
-
-def _register_plugin_criteria() -> None:
-    from importlib.metadata import entry_points
-
-    try:
-        names = [ep.name for ep in entry_points(group="bench.criteria")]
-    except Exception:  # noqa: BLE001 - broken metadata must not break loading
-        return
-    for name in names:
-        if name not in CRITERIA:
-            register_criterion(name, doc="(from a plugin)", le=None)
-
-
-_register_plugin_criteria()
-
 
 def _parse_criteria(v: Any, raw: Any, path: tuple) -> Any:
+    """criterion name -> limit, checked against the criteria registry (`bench.scenario.criteria`)."""
     if raw is None:
         return {}
     if not isinstance(raw, dict):
@@ -501,21 +449,27 @@ def _parse_criteria(v: Any, raw: Any, path: tuple) -> Any:
     ok = True
     for name, value in raw.items():
         p = path + (name,)
-        info = CRITERIA.get(name)
+        if name not in criterion_names():
+            v.unknown_key(p, name, criterion_names())
+            ok = False
+            continue
+        info = get_criterion(name)
         if info is None:
-            v.unknown_key(p, name, CRITERIA)
+            v.fail(p, f"criterion {name!r} cannot be loaded: {criteria_registry.load_errors.get(name, 'unknown')}",
+                   "check the package that registers it (entry point group bench.criteria)", at_key=True)
             ok = False
             continue
         if value is None:  # lets a file that extends another drop an inherited criterion
             continue
-        if info.boolean:
+        if getattr(info, "boolean", False):
             if not isinstance(value, bool):
                 v.fail(p, f"{name} is a yes/no criterion: expected true or false, got {v.describe(value)}")
                 ok = False
             elif value:
                 out[name] = True
             continue
-        got = v.convert(float, value, p, {"ge": info.ge, "le": info.le, "unit": info.unit})
+        got = v.convert(float, value, p, {"ge": getattr(info, "ge", None), "le": getattr(info, "le", None),
+                                          "unit": unit_of(info)})
         if got is v.INVALID:
             ok = False
         else:
@@ -525,17 +479,18 @@ def _parse_criteria(v: Any, raw: Any, path: tuple) -> Any:
 
 def _criteria_json() -> dict:
     props = {}
-    for info in CRITERIA.values():
-        desc = info.doc + (f" [{info.unit}]" if info.unit else "")
-        if info.boolean:
-            props[info.name] = {"description": desc, "type": ["boolean", "null"]}
+    for name, info in all_criteria().items():
+        unit = unit_of(info)
+        desc = str(getattr(info, "description", "")) + (f" [{unit}]" if unit else "")
+        if getattr(info, "boolean", False):
+            props[name] = {"description": desc, "type": ["boolean", "null"]}
         else:
             s: dict[str, Any] = {"description": desc, "type": ["number", "null"]}
-            if info.ge is not None:
+            if getattr(info, "ge", None) is not None:
                 s["minimum"] = info.ge
-            if info.le is not None:
+            if getattr(info, "le", None) is not None:
                 s["maximum"] = info.le
-            props[info.name] = s
+            props[name] = s
     return {"type": ["object", "null"], "properties": props, "additionalProperties": False}
 
 
