@@ -16,6 +16,7 @@ import mujoco
 import numpy as np
 
 from bench.faults import WorldContext, group_by_kind
+from bench.fileio import write_atomic
 from bench.robot.locate import resolve_robot
 from bench.robot.manifest import RobotManifest
 from bench.robot.model import load_robot_spec
@@ -203,7 +204,4 @@ def _nominal_foot_xy(world: World) -> np.ndarray:
 
 def export_mjcf(world: World, path: str | Path) -> None:
     """Write the compiled world as MJCF that loads in MuJoCo on its own."""
-    xml = world.spec.to_xml()
-    tmp = Path(str(path) + ".tmp")
-    tmp.write_text(xml)
-    tmp.replace(path)
+    write_atomic(path, world.spec.to_xml().encode("utf-8"))
