@@ -77,3 +77,21 @@ def test_is_inside(tmp_path):
     root = tmp_path.resolve()
     assert is_inside(root, [root]) and is_inside(root / "x" / "y", [root])
     assert not is_inside(root.parent, [root]) and not is_inside(tmp_path.parent / (tmp_path.name + "x"), [root])
+
+
+@pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="no FIFOs on this platform")
+def test_bench_check_refuses_an_mjcf_that_is_a_fifo(tmp_path, capsys):
+    """Before: the MJCF scan read the FIFO and `bench check` hung forever."""
+    from pathlib import Path
+
+    from bench.cli import main
+
+    manifest = (Path(__file__).resolve().parents[1] / "models" / "quad12" / "manifest.yaml").read_text()
+    lines = [("mjcf: robot.xml" if ln.startswith("mjcf:") else ln) for ln in manifest.splitlines()]
+    (tmp_path / "manifest.yaml").write_text("\n".join(lines) + "\n")
+    os.mkfifo(tmp_path / "robot.xml")
+    scenario = tmp_path / "s.yaml"
+    scenario.write_text("name: f\nduration: 1\nrobot: {manifest: manifest.yaml}\n")
+    assert main(["check", str(scenario)]) == 2
+    err = capsys.readouterr().err
+    assert "robot.xml:1:1" in err and "not a regular file" in err

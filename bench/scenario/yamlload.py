@@ -96,9 +96,6 @@ class Locations:
         loc = self.keys.get(path)
         return loc if loc is not None else self.value(path)
 
-    def has(self, path: Path_) -> bool:
-        return tuple(path) in self.values
-
     def copy(self) -> Locations:
         new = Locations(self.default)
         new.values = dict(self.values)

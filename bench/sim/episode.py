@@ -239,11 +239,6 @@ class EpisodeResult:
     interruptible: bool = False                                # whether the watchdog could run
 
 
-def _quat_to_mat(q: np.ndarray, out: np.ndarray) -> np.ndarray:
-    mujoco.mju_quat2Mat(out, q)
-    return out
-
-
 def run_episode(world, scenario, controller, robot, *, seed: int | None = None,
                 limits: EpisodeLimits | None = None) -> EpisodeResult:
     """Run ``scenario`` in ``world`` with ``controller`` (already constructed) and return the result."""

@@ -69,10 +69,6 @@ class World:
         return np.concatenate([self.robot_body_ids, [p.body_id for p in self.payloads]]).astype(int)
 
 
-def _scenario_dir(scenario) -> Path:
-    return Path(scenario.source).resolve().parent if getattr(scenario, "source", None) else Path.cwd()
-
-
 def manifest_for(scenario) -> RobotManifest:
     ref = scenario.robot
     if getattr(ref, "manifest", None):
