@@ -291,3 +291,12 @@ def test_derates_overwrite_in_written_order(tmp_path):
     assert np.all(lim[t < 0.05 - 1e-12] == nominal)
     assert np.all(lim[first, j] == nominal[j] * 0.2) and np.all(np.delete(lim[first], j, axis=1) == np.delete(nominal, j))
     assert np.all(lim[second] == nominal * 0.5)
+
+
+def test_bench_list_faults_prints_the_registry(capsys, torque_bias):
+    from bench.cli import main
+
+    assert main(["list", "faults"]) == 0
+    lines = capsys.readouterr().out.splitlines()
+    assert [ln.split()[0] for ln in lines] == sorted(fault_kinds())
+    assert any(ln.startswith("torque_bias ") and "constant torque added" in ln for ln in lines)

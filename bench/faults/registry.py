@@ -27,8 +27,9 @@ import dataclasses
 import math
 from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import dataclass
-from importlib.metadata import entry_points
 from typing import Any, Callable
+
+from bench.plugins import PluginTable
 
 ENTRY_POINT_GROUP = "bench.faults"
 
@@ -113,64 +114,43 @@ class FaultKind:
         return self.schema.kind
 
 
-_in_process: dict[str, FaultKind] = {}
-_from_entry_points: dict[str, FaultKind] | None = None
-#: Entry points that could not be loaded: name -> why (shown as a hint when a scenario names one).
-load_errors: dict[str, str] = {}
-
-
-def _check(kind: Any, where: str) -> FaultKind:
+def _check(kind: Any, name: str) -> FaultKind:
     if not isinstance(kind, FaultKind):
-        raise TypeError(f"{where}: expected a bench.faults.FaultKind, got {type(kind).__name__}")
+        raise TypeError(f"expected a bench.faults.FaultKind, got {type(kind).__name__}")
     cls = kind.schema
     if not (dataclasses.is_dataclass(cls) and isinstance(getattr(cls, "kind", None), str)):
-        raise TypeError(f"{where}: the schema must be a dataclass with a class attribute 'kind'")
+        raise TypeError("the schema must be a dataclass with a class attribute 'kind'")
+    if cls.kind != name:
+        raise TypeError(f"registered as {name!r} but its schema's kind is {cls.kind!r}")
     if "at" not in {f.name for f in dataclasses.fields(cls)}:
-        raise TypeError(f"{where}: fault kind {cls.kind!r} has no field 'at' (its switch-on time)")
+        raise TypeError(f"fault kind {cls.kind!r} has no field 'at' (its switch-on time)")
     return kind
 
 
-def _load_entry_points() -> dict[str, FaultKind]:
-    global _from_entry_points
-    if _from_entry_points is None:
-        found: dict[str, FaultKind] = {}
-        try:
-            eps = list(entry_points(group=ENTRY_POINT_GROUP))
-        except Exception:  # noqa: BLE001 - broken package metadata must not break loading scenarios
-            eps = []
-        for ep in eps:
-            try:
-                kind = _check(ep.load(), f"entry point {ep.name!r} ({ep.value})")
-            except Exception as exc:  # noqa: BLE001 - a broken plugin is reported where it is named
-                load_errors[ep.name] = f"{type(exc).__name__}: {exc}"
-                continue
-            if kind.name != ep.name:
-                load_errors[ep.name] = f"entry point {ep.name!r} names kind {kind.name!r}"
-                continue
-            found[ep.name] = kind
-        _from_entry_points = found
-    return _from_entry_points
+_table = PluginTable(ENTRY_POINT_GROUP, _check)
+#: Entry points that could not be loaded: name -> why.
+load_errors = _table.load_errors
 
 
 def register_fault_kind(kind: FaultKind) -> FaultKind:
     """Make ``kind`` available to scenarios in this process (replaces a kind of the same name)."""
-    _in_process[_check(kind, "register_fault_kind").name] = kind
-    return kind
+    return _table.register(getattr(getattr(kind, "schema", None), "kind", None), kind)
 
 
 def unregister_fault_kind(name: str) -> None:
-    _in_process.pop(name, None)
+    _table.unregister(name)
 
 
 def fault_kinds() -> dict[str, FaultKind]:
-    """Every registered kind by name: entry points, then in-process registrations (which win)."""
-    return {**_load_entry_points(), **_in_process}
+    """Every kind that loads, by name: entry points and in-process registrations (which win)."""
+    return _table.all()
 
 
 def fault_kind(name: str) -> FaultKind:
-    kind = fault_kinds().get(name)
+    kind = _table.get(name)
     if kind is None:
-        raise KeyError(f"unknown fault kind {name!r}")
+        why = load_errors.get(name)
+        raise KeyError(f"fault kind {name!r} cannot be loaded: {why}" if why else f"unknown fault kind {name!r}")
     return kind
 
 

@@ -18,70 +18,49 @@ not import every plugin.
 
 from __future__ import annotations
 
-from importlib.metadata import entry_points
 from typing import Any
+
+from bench.plugins import PluginTable
 
 ENTRY_POINT_GROUP = "bench.criteria"
 
-_in_process: dict[str, Any] = {}
-_entry_points: dict[str, Any] | None = None   # name -> EntryPoint (not yet loaded)
-_loaded: dict[str, Any] = {}
+
+def _check(criterion: Any, name: str) -> Any:
+    for attr in ("name", "evaluate"):
+        if not hasattr(criterion, attr):
+            raise TypeError(f"a criterion needs a {attr!r} attribute; got {type(criterion).__name__}")
+    if criterion.name != name:
+        raise TypeError(f"registered as {name!r} but named {criterion.name!r}")
+    return criterion
+
+
+_table = PluginTable(ENTRY_POINT_GROUP, _check)
 #: Entry points that could not be loaded: name -> why.
-load_errors: dict[str, str] = {}
-
-
-def _eps() -> dict[str, Any]:
-    global _entry_points
-    if _entry_points is None:
-        try:
-            _entry_points = {ep.name: ep for ep in entry_points(group=ENTRY_POINT_GROUP)}
-        except Exception:  # noqa: BLE001 - broken package metadata must not break loading scenarios
-            _entry_points = {}
-    return _entry_points
+load_errors = _table.load_errors
 
 
 def register_criterion(criterion: Any) -> Any:
     """Make ``criterion`` usable in this process under ``criterion.name`` (replaces one of the same name)."""
-    for attr in ("name", "evaluate"):
-        if not hasattr(criterion, attr):
-            raise TypeError(f"a criterion needs a {attr!r} attribute; got {type(criterion).__name__}")
-    _in_process[criterion.name] = criterion
-    return criterion
+    return _table.register(getattr(criterion, "name", None), criterion)
 
 
 def unregister_criterion(name: str) -> None:
-    _in_process.pop(name, None)
+    _table.unregister(name)
 
 
 def criterion_names() -> list[str]:
     """Every registered name, sorted (nothing is imported)."""
-    return sorted({*_eps(), *_in_process})
+    return _table.names()
 
 
 def get_criterion(name: str) -> Any | None:
     """The criterion called ``name``, or None when there is none or it cannot be loaded (see `load_errors`)."""
-    if name in _in_process:
-        return _in_process[name]
-    if name not in _loaded:
-        ep = _eps().get(name)
-        if ep is None:
-            return None
-        try:
-            _loaded[name] = ep.load()
-        except Exception as exc:  # noqa: BLE001 - a broken plugin is reported where it is used
-            load_errors[name] = f"{type(exc).__name__}: {exc}"
-            _loaded[name] = None
-    return _loaded[name]
+    return _table.get(name)
 
 
 def all_criteria() -> dict[str, Any]:
     """Every criterion that loads, by name (sorted)."""
-    out = {}
-    for name in criterion_names():
-        crit = get_criterion(name)
-        if crit is not None:
-            out[name] = crit
-    return out
+    return _table.all()
 
 
 def unit_of(criterion: Any) -> str | None:
