@@ -201,7 +201,12 @@ class Spy:
 [sc] = load_file(sys.argv[1])
 m = manifest_for(sc)
 run_episode(build_world(sc, m), sc, Spy(), NominalRobot(m))
-print(json.dumps({"kinds": sorted(fault_kinds()), "seen": seen}))
+try:
+    load_file(sys.argv[2])
+    broken = ""
+except Exception as exc:
+    broken = str(exc)
+print(json.dumps({"kinds": sorted(fault_kinds()), "seen": seen, "broken": broken}))
 '''
 
 
@@ -210,7 +215,8 @@ def test_a_kind_from_an_entry_point_of_another_package(tmp_path):
     (site / "userfaults-0.1.dist-info").mkdir(parents=True)
     (site / "userfaults.py").write_text(PLUGIN)
     (site / "userfaults-0.1.dist-info" / "METADATA").write_text("Metadata-Version: 2.1\nName: userfaults\nVersion: 0.1\n")
-    (site / "userfaults-0.1.dist-info" / "entry_points.txt").write_text("[bench.faults]\nblind_gyro = userfaults:KIND\n")
+    (site / "userfaults-0.1.dist-info" / "entry_points.txt").write_text(
+        "[bench.faults]\nblind_gyro = userfaults:KIND\nbroken_kind = userfaults_missing:KIND\n")
     scenario = _write(tmp_path, """
         name: blind
         duration: 0.1
@@ -218,12 +224,17 @@ def test_a_kind_from_an_entry_point_of_another_package(tmp_path):
           - blind_gyro: {at: 0.05}
         criteria: {no_fall: false}
     """)
+    broken = tmp_path / "broken.yaml"
+    broken.write_text(scenario.read_text().replace("blind_gyro", "broken_kind"))
     env = {**os.environ, "PYTHONPATH": os.pathsep.join([str(site), os.environ.get("PYTHONPATH", "")])}
-    out = subprocess.run([sys.executable, "-c", CHILD, str(scenario)], capture_output=True, text=True, env=env,
-                         timeout=120)
+    out = subprocess.run([sys.executable, "-c", CHILD, str(scenario), str(broken)], capture_output=True, text=True,
+                         env=env, timeout=120)
     assert out.returncode == 0, out.stderr
     got = json.loads(out.stdout)
-    assert "blind_gyro" in got["kinds"] and "derate" in got["kinds"]
+    assert "blind_gyro" in got["kinds"] and "derate" in got["kinds"] and "broken_kind" not in got["kinds"]
+    # A kind whose package is broken is named, with why, at the line that uses it; the others still load.
+    assert "faults.0.broken_kind" in got["broken"] and "cannot be loaded" in got["broken"]
+    assert "ModuleNotFoundError" in got["broken"] and ":5:" in got["broken"]
     before = [g for t, g in got["seen"] if t < 0.05 - 1e-12]
     after = [g for t, g in got["seen"] if t >= 0.05 - 1e-12]
     assert before and after

@@ -169,6 +169,11 @@ class SchemaTable(Mapping):
     def __repr__(self) -> str:
         return f"SchemaTable({list(self)})"
 
+    @property
+    def load_errors(self) -> dict[str, str]:
+        """Registered kinds that could not be loaded: name -> why."""
+        return load_errors
+
 
 def group_by_kind(faults: Iterable[Any]) -> list[tuple[FaultKind, list[tuple[int, Any]]]]:
     """The faults of a scenario as ``(kind, [(index, fault), ...])``, kinds in order of first appearance."""

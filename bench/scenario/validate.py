@@ -253,6 +253,10 @@ class Validator:
                              f"{', '.join(map(str, raw))}", f"write each as its own '{example}' item")
         kind, body = next(iter(raw.items()))
         if kind not in table:
+            broken = getattr(table, "load_errors", {}).get(kind)   # a registered plugin that fails to load
+            if broken:
+                return self.fail(path + (kind,), f"{what} kind {kind!r} cannot be loaded: {broken}",
+                                 "check the package that registers it", at_key=True)
             return self.unknown_key(path + (kind,), kind, table, what=f"{what} kind")
         return self.build(table[kind], body, path + (kind,))
 
