@@ -22,7 +22,7 @@ import pytest
 from bench.errors import ScenarioErrors
 from bench.faults import Effect, FaultContext, FaultKind, fault_kinds, register_fault_kind, unregister_fault_kind
 from bench.scenario import FAULT_KINDS, load_file, scenario_json_schema
-from bench.scenario.fields import AT, frozen, spec
+from bench.fieldspec import AT, frozen, spec
 from bench.sim.episode import run_episode
 from bench.world.build import build_world, manifest_for
 from bench.world.validate import check_against_robot
@@ -160,7 +160,7 @@ def test_a_kind_needs_an_at_field():
 PLUGIN = '''
 from typing import ClassVar
 from bench.faults import Effect, FaultKind
-from bench.scenario.fields import AT, frozen, spec
+from bench.fieldspec import AT, frozen, spec
 
 @frozen
 class Blind:

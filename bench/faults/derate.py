@@ -7,7 +7,7 @@ from typing import Any, ClassVar
 import numpy as np
 
 from bench.faults.registry import Effect, FaultContext, FaultKind
-from bench.scenario.fields import AT, MAX_LIST_ITEMS, frozen, spec
+from bench.fieldspec import AT, MAX_LIST_ITEMS, frozen, spec
 
 
 def _parse_joints(v: Any, raw: Any, path: tuple) -> Any:

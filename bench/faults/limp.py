@@ -7,7 +7,7 @@ from typing import ClassVar
 import numpy as np
 
 from bench.faults.registry import Effect, FaultContext, FaultKind
-from bench.scenario.fields import AT, frozen, spec
+from bench.fieldspec import AT, frozen, spec
 
 
 @frozen

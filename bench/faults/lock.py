@@ -10,7 +10,7 @@ from __future__ import annotations
 from typing import ClassVar
 
 from bench.faults.registry import Effect, FaultContext, FaultKind, WorldContext
-from bench.scenario.fields import AT, frozen, spec
+from bench.fieldspec import AT, frozen, spec
 
 #: A locked joint's equality constraint: time constant in timesteps (MuJoCo's safe minimum is 2) and impedance.
 LOCK_TIMECONST_STEPS = 2.0

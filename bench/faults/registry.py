@@ -3,7 +3,7 @@
 A fault kind is one module (the built-ins are `bench.faults.<kind>`) that
 declares, in one place:
 
-- ``schema``: a frozen dataclass declared with `bench.scenario.fields.spec`,
+- ``schema``: a frozen dataclass declared with `bench.fieldspec.spec`,
   with a class attribute ``kind`` equal to its name and a field ``at`` (the
   switch-on time, s). The scenario stage validates and documents it; it must
   import no MuJoCo. Optional methods: ``label()`` (the event caption) and

@@ -12,7 +12,7 @@ import numpy as np
 
 from bench.faults.registry import Effect, FaultContext, FaultKind
 from bench.faults.sensors import OBS_FIELDS, Sensor
-from bench.scenario.fields import AT, frozen, spec
+from bench.fieldspec import AT, frozen, spec
 
 
 @frozen

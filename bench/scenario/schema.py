@@ -30,8 +30,8 @@ from bench.faults.registry import SchemaTable
 from bench.faults.sensors import SENSORS  # noqa: F401 - re-exported
 from bench.scenario import criteria as criteria_registry
 from bench.scenario.criteria import all_criteria, criterion_names, get_criterion, unit_of
-from bench.scenario.fields import AT as _AT
-from bench.scenario.fields import (  # noqa: F401 - re-exported: the schema's declaration vocabulary
+from bench.fieldspec import AT as _AT
+from bench.fieldspec import (  # noqa: F401 - re-exported: the schema's declaration vocabulary
     MAX_DURATION_S,
     MAX_HFIELD_CELLS,
     MAX_LIST_ITEMS,
@@ -39,7 +39,7 @@ from bench.scenario.fields import (  # noqa: F401 - re-exported: the schema's de
     Problem,
     spec,
 )
-from bench.scenario.fields import frozen as _frozen
+from bench.fieldspec import frozen as _frozen
 
 Vec3 = tuple[float, float, float]
 Range2 = tuple[float, float]

@@ -1,9 +1,11 @@
-"""How a scenario field is declared: `spec(...)` metadata, the frozen-dataclass decorator, shared bounds.
+"""How a schema field is declared: `spec(...)` metadata, the frozen-dataclass decorator, shared bounds.
 
-Kept apart from `schema.py` so that a fault kind (`bench.faults`), a user's
-module among them, can declare its fields with the same machinery without
-importing the whole schema (which lists the kinds it reads from the registry).
-Imports nothing but the standard library.
+The scenario schema (`bench.scenario.schema`) and every fault kind
+(`bench.faults`, a user's among them) declare their fields with it, and the
+scenario validator and JSON Schema generator read what it records. It sits
+below both so that a kind's module never imports the scenario package (which
+reads the kinds from the registry): no import cycle between the two. Imports
+nothing but the standard library.
 """
 
 from __future__ import annotations
