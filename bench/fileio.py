@@ -7,8 +7,10 @@ or the new one, never half of one. The file gets the mode an ordinary
 only). Temporary names are ``.<name>.<random>.tmp`` (``.tmp<suffix>`` when a
 library picks the format from the suffix), which `remove_temp_files` knows.
 
-Bounded reads refuse what is not a regular file (a FIFO would block the read
-forever, a device never end) and what is over a size limit, without reading it.
+A file a user names is read only when it is a regular file: opening a FIFO
+waits for a writer forever, and a device may never end. `not_regular` says
+what a path is without opening it; `read_limited` checks the open descriptor
+(so the file checked is the file read) and a size limit.
 """
 
 from __future__ import annotations
@@ -141,3 +143,25 @@ def sha256_files(root: str | Path, files: Iterable[str | Path]) -> str:
 def is_inside(path: Path, roots: Sequence[Path]) -> bool:
     """Whether the (resolved) ``path`` is one of the (resolved) ``roots`` or below one."""
     return any(path == r or path.is_relative_to(r) for r in roots)
+
+
+def not_regular(path: str | Path) -> str | None:
+    """What ``path`` is when it exists but is not a regular file (``"a FIFO (named pipe)"``...), else None.
+
+    Follows symbolic links, and never opens the file (opening a FIFO for reading blocks).
+    """
+    try:
+        mode = os.stat(path).st_mode
+    except (OSError, ValueError):   # missing, unreadable folder, NUL in the name: reported elsewhere
+        return None
+    if stat.S_ISREG(mode):
+        return None
+    if stat.S_ISFIFO(mode):
+        return "a FIFO (named pipe)"
+    if stat.S_ISDIR(mode):
+        return "a folder"
+    if stat.S_ISSOCK(mode):
+        return "a socket"
+    if stat.S_ISCHR(mode) or stat.S_ISBLK(mode):
+        return "a device"
+    return "not a regular file"
