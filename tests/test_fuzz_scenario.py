@@ -75,9 +75,7 @@ SEED_TEXTS = [yaml.safe_dump(d, sort_keys=False) for d in SEEDS]
 
 @pytest.fixture(scope="module")
 def work(tmp_path_factory):
-    cwd = os.getcwd()
-    yield tmp_path_factory.mktemp("fuzz")
-    os.chdir(cwd)   # the hostile-YAML test works in this folder; later tests give paths from the repository
+    return tmp_path_factory.mktemp("fuzz")
 
 
 def check_file(path: Path) -> tuple[int, str]:
