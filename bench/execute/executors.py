@@ -57,7 +57,6 @@ def code_fingerprint() -> dict[str, str]:
     A remote worker whose fingerprint differs from this machine's would give
     different results for the same scenario.
     """
-    import hashlib
     import platform
     from pathlib import Path
 
@@ -65,13 +64,11 @@ def code_fingerprint() -> dict[str, str]:
     import numpy
 
     import bench
+    from bench.fileio import sha256_files
 
-    h = hashlib.sha256()
     root = Path(bench.__file__).resolve().parent
-    for f in sorted(root.rglob("*.py")):
-        h.update(f.relative_to(root).as_posix().encode())
-        h.update(f.read_bytes())
-    return {"bench": f"{bench.__version__} (source {h.hexdigest()[:12]})", "mujoco": mujoco.__version__,
+    source = sha256_files(root, root.rglob("*.py"))
+    return {"bench": f"{bench.__version__} (source {source[:12]})", "mujoco": mujoco.__version__,
             "numpy": numpy.__version__, "python": platform.python_version()}
 
 

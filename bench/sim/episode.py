@@ -55,8 +55,10 @@ import mujoco
 import numpy as np
 
 from bench.controllers.base import Observation
+from bench.faults import FaultContext
 from bench.sim.interrupts import UserInterrupts, raised_reason
 from bench.sim.events import Event, compile_forces, compile_masses, fault_events
+from bench.sim.faults import compile_faults
 from bench.sim.trace import Trace
 from bench.world.payloads import PAYLOAD_CONTYPE, PAYLOAD_RGBA
 
@@ -285,48 +287,6 @@ class EpisodeResult:
     watchdog_restored: list[str] = field(default_factory=list)  # watchdog state a controller changed, put back
 
 
-def _quat_to_mat(q: np.ndarray, out: np.ndarray) -> np.ndarray:
-    mujoco.mju_quat2Mat(out, q)
-    return out
-
-
-class _SensorFaults:
-    """Noise, bias and freezing applied to the observation, drawn from the episode's generator."""
-
-    _FIELDS = {"imu_gyro": "imu_gyro", "imu_accel": "imu_accel", "joint_pos": "joint_pos",
-               "joint_vel": "joint_vel", "imu_orientation": "imu_quat"}
-
-    def __init__(self, faults, rng: np.random.Generator):
-        self.noise = [f for f in faults if f.kind == "sensor_noise"]
-        self.freeze = [f for f in faults if f.kind == "sensor_freeze"]
-        self.rng = rng
-        self.frozen: dict[str, np.ndarray] = {}
-        self.active = bool(self.noise or self.freeze)
-
-    def apply(self, obs: Observation, t: float) -> None:
-        for f in self.freeze:
-            name = self._FIELDS[f.sensor]
-            if t >= f.at:
-                if name not in self.frozen:
-                    self.frozen[name] = getattr(obs, name).copy()
-                getattr(obs, name)[:] = self.frozen[name]
-        for f in self.noise:
-            if t < f.at:
-                continue
-            name = self._FIELDS[f.sensor]
-            arr = getattr(obs, name)
-            if name == "imu_quat":
-                # A random small rotation (std in rad per axis) composed with the true one.
-                rv = self.rng.standard_normal(3) * f.std + f.bias
-                dq = np.empty(4)
-                mujoco.mju_axisAngle2Quat(dq, rv / (np.linalg.norm(rv) + 1e-12), float(np.linalg.norm(rv)))
-                out = np.empty(4)
-                mujoco.mju_mulQuat(out, arr, dq)
-                arr[:] = out
-            else:
-                arr += self.rng.standard_normal(arr.shape) * f.std + f.bias
-
-
 def run_episode(world, scenario, controller, robot, *, seed: int | None = None,
                 limits: EpisodeLimits | None = None) -> EpisodeResult:
     """Run ``scenario`` in ``world`` with ``controller`` (already constructed) and return the result."""
@@ -375,19 +335,12 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     mass_scheds, mass_events = compile_masses(scenario.payloads, float(scenario.duration))
     events += mass_events + fault_events(scenario.faults, float(scenario.duration))
     events.sort(key=lambda e: e.t_start)
-    sensor_faults = _SensorFaults(scenario.faults, rng)
-    joint_index = {name: i for i, name in enumerate(world.robot.joints)}
-    derates = [(f.at, np.arange(J) if f.joints == "all" else np.array([joint_index[j] for j in f.joints]), f.factor)
-               for f in scenario.faults if f.kind == "derate"]
-    limps = [(f.at, joint_index[f.joint]) for f in scenario.faults if f.kind == "limp"]
-    locks = [(f.at, joint_index[f.joint], world.lock_eq_ids[i]) for i, f in enumerate(scenario.faults)
-             if f.kind == "lock"]
-    latencies = sorted((f.at, max(int(round(f.delay / ctrl_dt)), 0)) for f in scenario.faults if f.kind == "latency")
-    max_delay = max([k for _, k in latencies], default=0)
-    tau_ring = np.zeros((max_delay + 1, J))
-
     nominal_limits = np.asarray(world.robot.torque_limits, dtype=float)
     limit_now = nominal_limits.copy()
+    faults = compile_faults(scenario.faults, FaultContext(
+        model=m, data=d, world=world, ctrl_dt=ctrl_dt, n_ticks=n_ticks,
+        joint_index={name: i for i, name in enumerate(world.robot.joints)},
+        nominal_limits=nominal_limits, limit_now=limit_now, rng=rng))
     payload_mass = np.array([float(p.spec.mass) if not p.spec.attach_at else 0.0 for p in world.payloads])
     # As built (not as a previous episode on this world may have left them).
     payload_geom_contype = np.full(len(world.payloads), PAYLOAD_CONTYPE, dtype=int)
@@ -500,13 +453,8 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                     m.geom_contype[p.geom_id] = payload_geom_contype[ms.payload_index] if visible else 0
                     m.geom_rgba[p.geom_id, 3] = base_rgba_alpha[ms.payload_index] if visible else 0.0
                     payload_mass[ms.payload_index] = mass
-            for at, idx, factor in derates:
-                if t >= at:
-                    limit_now[idx] = nominal_limits[idx] * factor
-            for at, j, eq in locks:
-                if t >= at and not d.eq_active[eq]:
-                    m.eq_data[eq, 0] = d.qpos[jq[j]]
-                    d.eq_active[eq] = 1
+            if k == faults.next_tick:   # faults switching on (derated limits, a lock's constraint...)
+                faults.switch(k)
 
             apply_forces(step)
             mujoco.mj_step1(m, d)
@@ -536,8 +484,8 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 obs.foot_contact[foot[touching]] = True
                 fell_contact = bool(np.any(ground_con & is_fall[other] & (d.contact.dist < 0)))
             _record_state(A, k, t, world, d, obs, payload_mass, carried, feet_sites)
-            if sensor_faults.active:
-                sensor_faults.apply(obs, t)
+            if faults.observers:
+                faults.observe(obs)
             command[:] = cmd_vals[cmd_index[k]]
 
             # The controller.
@@ -591,19 +539,15 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 status, reason = "error", f"controller returned non-finite torques at tick {k} (t={t:.3f} s)"
                 break
 
-            # Latency, limp joints and limits, then hold until the next tick.
-            delay = 0
-            for at, dk in latencies:
-                if t >= at:
-                    delay = dk
-            tau_ring[k % (max_delay + 1)] = tau
-            applied = tau_ring[(k - delay) % (max_delay + 1)] if k >= delay else np.zeros(J)
-            np.minimum(applied, limit_now, out=applied_buf)
+            # Faults on the command (latency), the limits, faults on the applied torque (limp joints),
+            # then hold until the next tick.
+            if faults.commanders:
+                tau = faults.command(k, tau)
+            np.minimum(tau, limit_now, out=applied_buf)
             np.maximum(applied_buf, -limit_now, out=applied_buf)
             applied = applied_buf
-            for at, j in limps:
-                if t >= at:
-                    applied[j] = 0.0
+            if faults.appliers:
+                faults.apply(applied)
             d.ctrl[act] = applied
 
             mujoco.mj_step2(m, d)
