@@ -24,6 +24,7 @@ from bench.report.results import trace_digest
 from bench.robot.model import NominalRobot
 from bench.scoring.verdict import score
 from bench.sim.episode import EpisodeLimits, run_episode
+from bench.sim.interrupts import UserInterrupts, raised_reason
 from bench.sim.trace import Trace
 from bench.world.build import build_world, manifest_for
 
@@ -58,6 +59,14 @@ def _base_result(scenario, controller_name: str, seed: int) -> dict:
 
 
 def run_job(job: Job) -> Outcome:
+    # Controller code runs while the controller is made (its module imported, its constructor called) and
+    # during the episode: whatever it raises, SystemExit and KeyboardInterrupt included, is this episode's
+    # error; only the user's Ctrl-C goes through.
+    with UserInterrupts() as user:
+        return _run_job(job, user)
+
+
+def _run_job(job: Job, user: UserInterrupts) -> Outcome:
     sc = job.scenario
     seed = int(sc.seed if job.seed is None else job.seed)
     name = job.controller if isinstance(job.controller, str) else getattr(job.controller, "name", "custom")
@@ -66,8 +75,11 @@ def run_job(job: Job) -> Outcome:
     try:
         cname, controller = registry.make(job.controller)
         record = record.replace(controller=str(cname))
-    except Exception as exc:  # noqa: BLE001
-        return Outcome(record.replace(reason=f"controller {name!r} could not be made: {exc}").to_json(), None)
+    except BaseException as exc:  # noqa: BLE001 - SystemExit from a controller's module or constructor too
+        if user.by_user(exc):
+            raise
+        why = str(exc) if isinstance(exc, Exception) else raised_reason(exc, "while it was made")
+        return Outcome(record.replace(reason=f"controller {name!r} could not be made: {why}").to_json(), None)
     try:
         manifest = manifest_for(sc)
         world = build_world(sc, manifest)
@@ -78,7 +90,9 @@ def run_job(job: Job) -> Outcome:
         return Outcome(record.to_json(), None)
     try:
         ep = run_episode(world, sc, controller, robot, seed=seed, limits=job.limits)
-    except Exception as exc:  # noqa: BLE001 - a bench bug must still not unwind the run
+    except BaseException as exc:  # noqa: BLE001 - a bench bug must still not unwind the run
+        if user.by_user(exc):
+            raise
         record = record.replace(reason=f"episode failed: {type(exc).__name__}: {exc}",
                                 traceback=traceback.format_exc(limit=6), wall_time_s=time.perf_counter() - t0)
         return Outcome(record.to_json(), None)
