@@ -28,10 +28,12 @@ dual active-set solver), given the previous solution as warm start
 ``qpsolvers.Problem`` of each contact pattern is built once over preallocated
 matrices, which are rewritten in place every tick, and handed to
 ``qpsolvers.solve_problem`` (what ``qpsolvers.solve_qp`` calls after building a
-Problem). With
-``direct=True`` and ``solver="daqp"`` the same solver is called without the
-``qpsolvers`` wrapper on the same preallocated arrays (2-3x less time per
-solve; the answer is the same).
+Problem). With ``solver="daqp"`` the same solver is called directly by default
+(``direct=None`` or ``True``), without the ``qpsolvers`` wrapper, on the same
+preallocated arrays laid out exactly as the wrapper lays them out (bounds first,
+then the pyramid rows; same warm start): 2-3x less time per solve and a
+bit-identical answer. ``direct=False`` keeps the wrapper, as does any other
+back end.
 
 A failed or infeasible solve, an exception inside the solver, or non-finite
 output never raises: the previous forces scaled by ``fallback_scale`` are used
@@ -128,7 +130,7 @@ class ForceQP:
     wrench_weights: diagonal of ``S``: (fx, fy, fz, tx, ty, tz).
     solver: ``qpsolvers`` back end name.
     fallback_scale: factor on the previous forces when a solve fails.
-    direct: call DAQP directly (only with ``solver="daqp"``).
+    direct: call DAQP directly; ``None`` (default): when ``solver="daqp"``.
 
     Swing feet (load 0) are not decision variables at all: each contact pattern
     gets its own preallocated QP over its stance feet (built the first time the
@@ -147,7 +149,7 @@ class ForceQP:
         wrench_weights=(1.0, 1.0, 1.0, 20.0, 20.0, 10.0),
         solver: str = "daqp",
         fallback_scale: float = 0.9,
-        direct: bool = False,
+        direct: bool | None = None,
     ) -> None:
         self.n_feet = n = int(n_feet)
         self.nx = 3 * n
@@ -163,7 +165,7 @@ class ForceQP:
             raise ValueError("wrench_weights must have 6 entries")
         if direct and solver != "daqp":
             raise ValueError("direct=True is only available for solver='daqp'")
-        self.direct = bool(direct)
+        self.direct = solver == "daqp" if direct is None else bool(direct)
         if self.direct:
             import daqp  # the back end qpsolvers would call
             self._daqp_solve = daqp.solve

@@ -60,7 +60,8 @@ class ForceQPController:
     swing_height_m, k_vel, max_reach_m, swing_kp, swing_kd: swing planner.
     leg_bias_ff: add the nominal model's gravity/Coriolis joint torques (feed-forward).
     mu, fz_min_n, fz_max_n, alpha, beta, wrench_weights, solver, qp_direct: force QP
-        (``qp_direct`` calls DAQP without the qpsolvers wrapper, see ``force_qp.py``).
+        (``qp_direct``: call DAQP without the qpsolvers wrapper; ``None``, the default, does
+        so when ``solver="daqp"``, ``False`` keeps the wrapper; see ``force_qp.py``).
     kp_pos, kd_pos, kp_rot, kd_rot: trunk PD (accelerations per unit error).
     max_lin_acc (m/s^2), max_yaw_acc (rad/s^2): command rate limits.
     max_pos_err_m, max_yaw_err_rad: clip on the horizontal position / heading error.
@@ -88,7 +89,7 @@ class ForceQPController:
         beta: float = 1e-4,
         wrench_weights=(1.0, 1.0, 1.0, 20.0, 20.0, 10.0),
         solver: str = "daqp",
-        qp_direct: bool = False,
+        qp_direct: bool | None = None,
         kp_pos=(40.0, 40.0, 100.0),
         kd_pos=(12.0, 12.0, 20.0),
         kp_rot=(250.0, 250.0, 200.0),

@@ -1,0 +1,240 @@
+"""Benchmark: the episode loop's own cost, a reference stack's speed, and where a tick's time goes.
+
+Three measurements, each printed as a short copyable summary:
+
+``loop``
+    The bench's episode loop with ``joint-pd`` against a hand-written MuJoCo loop on the same compiled
+    world (read ``qpos``/``qvel``, the same PD law, clip to the torque limits, ``mj_step`` per
+    physics step, one ``qpos`` row kept per tick). Repeats are interleaved (hand, bench, hand,
+    bench...) so load on a shared machine hits both alike; the ratio is the median of the per-pair
+    ratios. Honesty check: both loops must produce the same trajectory (maximum absolute difference
+    of every ``qpos`` row, printed; the run fails if it exceeds 1e-9).
+``stack``
+    ``force-qp-l1`` on the bundled ``trot-rear-load`` scenario (10 s trot at 0.4 m/s with an
+    unknown 6 kg load): real-time factor (simulated time / episode wall time), the controller's
+    per-tick p50 and p99, and the whole tick's mean (episode wall time / ticks). Median of repeats.
+``profile``
+    One ``force-qp-l1`` episode of the same scenario under ``cProfile``, its time split into physics
+    (MuJoCo's step functions called by the runner), QP solve (the solver call inside the force
+    QP), controller (the rest of ``controller.step``) and runner (everything else in the episode).
+    A profiler inflates Python-heavy parts, so the same split is also given without a profiler:
+    controller and QP from the episode's own timers, physics from replaying the recorded torques
+    through a bare ``mj_step`` loop (same world, same start, so the same physics), runner the rest.
+
+    python tests/benchmarks/bench_lean.py [loop|stack|profile|all] [--repeats 5]
+"""
+
+from __future__ import annotations
+
+import argparse
+import cProfile
+import pstats
+import statistics
+import sys
+import textwrap
+import time
+from pathlib import Path
+from tempfile import TemporaryDirectory
+
+import mujoco
+import numpy as np
+
+from bench.controllers.registry import make
+from bench.controllers.simple import JointPDController
+from bench.robot.model import NominalRobot
+from bench.scenario import load_scenarios
+from bench.sim.episode import run_episode
+from bench.world.build import build_world
+
+ROOT = Path(__file__).resolve().parents[2]
+STACK_SCENARIO = ROOT / "scenarios" / "payload" / "trot-rear-load.yaml"
+HONESTY_TOL = 1e-9
+
+
+def _standing(tmp: Path, duration: float):
+    path = tmp / "stand.yaml"
+    path.write_text(textwrap.dedent(f"""
+        name: bench-stand
+        duration: {duration}
+        criteria: {{no_fall: false}}
+    """))
+    return load_scenarios([str(path)])[0]
+
+
+def hand_loop(world, sc, kp: float, kd: float) -> tuple[float, np.ndarray]:
+    """The same joint PD written directly against MuJoCo; returns (wall s, qpos per tick)."""
+    m = world.model
+    d = mujoco.MjData(m)
+    d.qpos[:] = world.initial_qpos
+    mujoco.mj_forward(m, d)
+    q0 = np.asarray(NominalRobot(world.robot).nominal_pose, dtype=float)
+    lim = np.asarray(world.robot.torque_limits, dtype=float)
+    jq, jv, act = world.joint_qpos_adr, world.joint_dof_adr, world.actuator_ids
+    substeps = max(int(round(1.0 / sc.control_rate / m.opt.timestep)), 1)
+    n_ticks = int(round(sc.duration * sc.control_rate))
+    rows = np.empty((n_ticks, m.nq))
+    tau = np.empty(len(jq))
+    t0 = time.perf_counter()
+    for k in range(n_ticks):
+        rows[k] = d.qpos
+        np.subtract(q0, d.qpos[jq], out=tau)
+        tau *= kp
+        tau -= kd * d.qvel[jv]
+        np.clip(tau, -lim, lim, out=tau)
+        d.ctrl[act] = tau
+        for _ in range(substeps):
+            mujoco.mj_step(m, d)
+    return time.perf_counter() - t0, rows
+
+
+def bench_loop(repeats: int, duration: float) -> dict:
+    kp, kd = 150.0, 3.0
+    hand, ours, ratios, diffs = [], [], [], []
+    with TemporaryDirectory() as tmp:
+        sc = _standing(Path(tmp), duration)
+        for _ in range(repeats):
+            world = build_world(sc)
+            wall_h, rows = hand_loop(world, sc, kp, kd)
+            world = build_world(sc)
+            ep = run_episode(world, sc, JointPDController(kp=kp, kd=kd), NominalRobot(world.robot))
+            assert ep.status == "completed", (ep.status, ep.reason)
+            hand.append(wall_h)
+            ours.append(ep.wall_time_s)
+            ratios.append(ep.wall_time_s / wall_h)
+            diffs.append(float(np.max(np.abs(ep.trace["qpos"] - rows))))
+    n = int(round(duration * sc.control_rate))
+    out = {"ticks": n, "hand_us": statistics.median(hand) / n * 1e6, "bench_us": statistics.median(ours) / n * 1e6,
+           "ratio": statistics.median(ratios), "max_diff": max(diffs)}
+    print(f"loop: quad12 standing, joint-pd kp {kp:g} kd {kd:g}, {duration:g} s = {n} ticks "
+          f"(1 kHz physics, 500 Hz control), {repeats} interleaved pairs, medians")
+    print(f"  hand-written MuJoCo loop   {out['hand_us']:7.1f} us/tick")
+    print(f"  bench episode loop         {out['bench_us']:7.1f} us/tick")
+    print(f"  ratio bench/hand           {out['ratio']:7.2f}   (per-pair range "
+          f"{min(ratios):.2f}-{max(ratios):.2f}; goal <= 1.10, acceptable <= 1.30)")
+    ok = out["max_diff"] <= HONESTY_TOL
+    print(f"  honesty: max |qpos difference| over all ticks {out['max_diff']:.3g} "
+          f"({'identical trajectories' if out['max_diff'] == 0 else 'agree' if ok else 'DISAGREE'})")
+    if not ok:
+        raise SystemExit("the two loops do not simulate the same trajectory; the ratio means nothing")
+    return out
+
+
+def _stack_episode(sc, name: str = "force-qp-l1"):
+    world = build_world(sc)
+    _, ctrl = make(name)
+    return world, ctrl, run_episode(world, sc, ctrl, NominalRobot(world.robot))
+
+
+def bench_stack(repeats: int) -> dict:
+    sc = load_scenarios([str(STACK_SCENARIO)])[0]
+    rtf, p50, p99, tick = [], [], [], []
+    status = set()
+    for _ in range(repeats):
+        _, _, ep = _stack_episode(sc)
+        ms = ep.trace["controller_ms"]
+        status.add(ep.status)
+        rtf.append(ep.sim_time_s / ep.wall_time_s)
+        p50.append(float(np.percentile(ms, 50)))
+        p99.append(float(np.percentile(ms, 99)))
+        tick.append(ep.wall_time_s / len(ms) * 1e3)
+    med = statistics.median
+    out = {"rtf": med(rtf), "p50_ms": med(p50), "p99_ms": med(p99), "tick_ms": med(tick)}
+    print(f"stack: force-qp-l1 on {sc.id} ({sc.duration:g} s trot, unknown 6 kg load), {repeats} repeats, "
+          f"medians; status {sorted(status)}")
+    print(f"  real-time factor           {out['rtf']:7.1f}x   (range {min(rtf):.1f}-{max(rtf):.1f}; "
+          f"goal >= 20x, acceptable >= 12x)")
+    print(f"  controller per tick        p50 {out['p50_ms'] * 1e3:6.1f} us   p99 {out['p99_ms'] * 1e3:6.1f} us")
+    print(f"  whole tick (wall/ticks)    {out['tick_ms'] * 1e3:7.1f} us   (budget at 20x: 100 us)")
+    return out
+
+
+_PHYSICS = ("mj_step", "mj_step1", "mj_step2")
+
+
+def _profile_split(stats: pstats.Stats) -> dict[str, float]:
+    """Seconds per part from a cProfile of one episode (see the module docstring)."""
+    physics = qp = ctrl = 0.0
+    total = stats.total_tt
+    for (fname, _line, func), (_cc, _nc, tt, ct, callers) in stats.stats.items():
+        if func in _PHYSICS and fname == "~" and any("episode.py" in c[0] for c in callers):
+            physics += tt
+        elif func in ("<built-in method daqp.solve>", "solve_problem") or (
+                fname == "~" and "daqp" in func and "solve" in func):
+            qp += ct if func == "solve_problem" else tt
+        elif func == "step" and fname.endswith("stacks.py"):
+            ctrl += ct
+    # mj_step* show up as built-ins named "<built-in method mujoco._functions.mj_step>"
+    for (fname, _line, func), (_cc, _nc, tt, _ct, callers) in stats.stats.items():
+        if fname == "~" and any(func.endswith(f".{p}>") for p in _PHYSICS):
+            physics += tt
+    return {"physics": physics, "qp": qp, "controller": ctrl - qp, "runner": total - physics - ctrl, "total": total}
+
+
+def _replay_physics(world, sc, trace) -> float:
+    """Wall time of the same physics driven by the recorded torques, nothing else."""
+    m = world.model
+    d = mujoco.MjData(m)
+    d.qpos[:] = world.initial_qpos
+    mujoco.mj_forward(m, d)
+    act = world.actuator_ids
+    substeps = max(int(round(1.0 / sc.control_rate / m.opt.timestep)), 1)
+    tau = np.ascontiguousarray(trace["joint_torque"])
+    t0 = time.perf_counter()
+    for k in range(len(tau)):
+        d.ctrl[act] = tau[k]
+        for _ in range(substeps):
+            mujoco.mj_step(m, d)
+    return time.perf_counter() - t0
+
+
+def bench_profile(repeats: int) -> dict:
+    sc = load_scenarios([str(STACK_SCENARIO)])[0]
+    world = build_world(sc)
+    _, ctrl = make("force-qp-l1")
+    prof = cProfile.Profile()
+    prof.enable()
+    ep = run_episode(world, sc, ctrl, NominalRobot(world.robot))
+    prof.disable()
+    split = _profile_split(pstats.Stats(prof))
+    n = len(ep.trace["t"])
+    print(f"profile: force-qp-l1 on {sc.id}, one episode under cProfile ({n} ticks), per tick")
+    tot = split["total"]
+    for part in ("physics", "runner", "controller", "qp"):
+        label = {"qp": "QP solve", "controller": "controller (without QP)"}.get(part, part)
+        print(f"  {label:<26} {split[part] / n * 1e6:7.1f} us  {100 * split[part] / tot:5.1f} %")
+    # the same split from the episode's own timers, no profiler (median of repeats)
+    rows = []
+    for _ in range(repeats):
+        world, ctrl, ep = _stack_episode(sc)
+        wall = ep.wall_time_s
+        c = float(np.sum(ep.trace["controller_ms"])) / 1e3
+        q = float(ctrl.qp.solve_time_s)
+        p = _replay_physics(build_world(sc), sc, ep.trace)
+        rows.append((p, wall - c - p, c - q, q, wall))
+    med = [statistics.median(r[i] for r in rows) for i in range(5)]
+    print(f"  without a profiler (episode timers + physics replay, median of {repeats}), per tick:")
+    for label, v in zip(("physics", "runner", "controller (without QP)", "QP solve"), med[:4]):
+        print(f"  {label:<26} {v / n * 1e6:7.1f} us  {100 * v / med[4]:5.1f} %")
+    return {"profile": split, "timers": med}
+
+
+def main(argv=None) -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("what", nargs="?", default="all", choices=("loop", "stack", "profile", "all"))
+    ap.add_argument("--repeats", type=int, default=5)
+    ap.add_argument("--duration", type=float, default=5.0, help="standing episode length for 'loop', s")
+    args = ap.parse_args(argv)
+    import bench
+
+    print(f"bench {getattr(bench, '__version__', '?')} from {Path(bench.__file__).parent}, "
+          f"mujoco {mujoco.__version__}, python {sys.version.split()[0]}")
+    if args.what in ("loop", "all"):
+        bench_loop(args.repeats, args.duration)
+    if args.what in ("stack", "all"):
+        bench_stack(args.repeats)
+    if args.what in ("profile", "all"):
+        bench_profile(max(args.repeats // 2, 1))
+
+
+if __name__ == "__main__":
+    main()
