@@ -57,6 +57,9 @@ class ContactTable:
             self.table.append(row)
         self._found: list[tuple[int, float, int]] = []   # (contact, sign, foot) of this instant's foot contacts
         self._cf = np.zeros(6)
+        n_feet = len(foot_geom_ids)
+        self._zeros = [0.0] * (3 * n_feet)
+        self._acc = [0.0] * (3 * n_feet)
 
     def classify(self, d: mujoco.MjData, foot_contact: np.ndarray) -> bool:
         """Mark feet touching the ground in ``foot_contact`` (cleared by the caller); True on a fall contact."""
@@ -84,26 +87,23 @@ class ContactTable:
         return fell
 
     def forces(self, m: mujoco.MjModel, d: mujoco.MjData, out: np.ndarray) -> None:
-        """Add each foot contact's force (world axes) to ``out`` (F, 3), zero where there is none."""
-        if not self._found:
+        """Write each foot's summed contact force (world axes) into ``out`` (F, 3, zeros), if any foot touches."""
+        found = self._found
+        if not found:
             return
         frames = d.contact.frame
         cf = self._cf
-        acc: dict[int, list[float]] = {}
-        for i, sign, foot in self._found:
+        acc = self._acc
+        acc[:] = self._zeros
+        for i, sign, foot in found:
             mujoco.mj_contactForce(m, d, i, cf)
-            c0, c1, c2 = cf.tolist()[:3]
-            fr = frames[i].tolist()
-            # frame.T @ cf[:3], one column at a time, in the product's own order
-            wx = sign * (fr[0] * c0 + fr[3] * c1 + fr[6] * c2)
-            wy = sign * (fr[1] * c0 + fr[4] * c1 + fr[7] * c2)
-            wz = sign * (fr[2] * c0 + fr[5] * c1 + fr[8] * c2)
-            s = acc.get(foot)
-            if s is None:   # 0.0 + w as in summing into a zeroed row: a -0.0 becomes 0.0
-                acc[foot] = [0.0 + wx, 0.0 + wy, 0.0 + wz]
-            else:
-                s[0] += wx
-                s[1] += wy
-                s[2] += wz
-        for foot, s in acc.items():
-            out[foot] = s
+            c0, c1, c2, _, _, _ = cf.tolist()
+            if sign < 0.0:   # -(a b + c d + e f) == (a (-b) + c (-d) + e (-f)) exactly: rounding is symmetric
+                c0, c1, c2 = -c0, -c1, -c2
+            f0, f1, f2, f3, f4, f5, f6, f7, f8 = frames[i].tolist()
+            j = 3 * foot
+            # frame.T @ cf[:3], added to a zeroed row, in a matrix-vector product's own order
+            acc[j] += f0 * c0 + f3 * c1 + f6 * c2
+            acc[j + 1] += f1 * c0 + f4 * c1 + f7 * c2
+            acc[j + 2] += f2 * c0 + f5 * c1 + f8 * c2
+        out.reshape(-1)[:] = acc
