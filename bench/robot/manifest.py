@@ -27,17 +27,41 @@ _OPTIONAL_KEYS = ("description",)
 
 
 class RobotError(ValueError):
-    """A problem with a robot manifest or its MJCF; names the file and the field."""
+    """A problem with a robot manifest or its MJCF; names the file, the field and, when known, the line.
 
-    def __init__(self, path: Path | str, field: str, message: str, hint: str = ""):
+    ``line`` and ``col`` are 1-based positions in the manifest (0 when the
+    problem is not at one place, e.g. a file that cannot be read).
+    """
+
+    def __init__(self, path: Path | str, field: str, message: str, hint: str = "", line: int = 0, col: int = 0):
         self.path = str(path)
         self.field = field
         self.message = message
         self.hint = hint
-        text = f"{self.path}: {field}: {message}"
+        self.line = int(line)
+        self.col = int(col)
+        where = f"{self.path}:{self.line}:{self.col}" if self.line else self.path
+        text = f"{where}: {field}: {message}" if field else f"{where}: {message}"
         if hint:
-            text += f" (hint: {hint})"
+            text += f" ({hint})"
         super().__init__(text)
+
+
+class RobotErrors(RobotError):
+    """Every problem found in one manifest, so that a user fixes them all in one pass.
+
+    Behaves as its first problem (``field``, ``line``...) for callers that want one;
+    ``errors`` has them all and ``str()`` is one problem per line.
+    """
+
+    def __init__(self, errors: list[RobotError]):
+        first = errors[0]
+        super().__init__(first.path, first.field, first.message, first.hint, first.line, first.col)
+        self.errors = list(errors)
+        self.args = ("\n".join(str(e) for e in self.errors),)
+
+    def __str__(self) -> str:
+        return self.args[0]
 
 
 @dataclass(frozen=True)
@@ -73,166 +97,296 @@ class RobotManifest:
 
 
 def load_manifest(path: str | Path) -> RobotManifest:
-    """Read, validate and return the manifest at `path` (raises RobotError)."""
+    """Read, validate and return the manifest at `path`.
+
+    Raises :class:`RobotErrors` listing every problem found, each at its line
+    and column in the manifest, with a did-you-mean where a name is close to a
+    known one.
+    """
     path = Path(path).expanduser().resolve()
     if not path.is_file():
-        raise RobotError(path, "manifest", "file not found")
+        raise RobotErrors([RobotError(path, "manifest", "file not found" if not path.exists()
+                                      else "not a regular file")])
     try:
-        doc = yaml.safe_load(path.read_text(encoding="utf-8"))
-    except yaml.YAMLError as exc:
-        raise RobotError(path, "manifest", f"not valid YAML: {exc}") from None
-    if not isinstance(doc, dict):
-        raise RobotError(path, "manifest", "expected a mapping at the top level")
-
-    missing = [k for k in _REQUIRED_KEYS if k not in doc]
-    if missing:
-        raise RobotError(path, missing[0], "required field missing",
-                         f"a manifest needs: {', '.join(_REQUIRED_KEYS)}")
-    unknown = sorted(set(doc) - set(_REQUIRED_KEYS) - set(_OPTIONAL_KEYS))
-    if unknown:
-        raise RobotError(path, unknown[0], "unknown field",
-                         f"accepted fields: {', '.join(_REQUIRED_KEYS + _OPTIONAL_KEYS)}")
-
-    name = _string(path, doc, "name")
-    mjcf_rel = _string(path, doc, "mjcf")
-    mjcf_path = (path.parent / mjcf_rel).resolve()
-    if not mjcf_path.is_file():
-        raise RobotError(path, "mjcf", f"MJCF file not found: {mjcf_path}",
-                         "the path is relative to the manifest")
-    trunk = _string(path, doc, "trunk")
-    imu_site = _string(path, doc, "imu_site")
-
-    sensors_raw = doc["sensors"]
-    if not isinstance(sensors_raw, dict):
-        raise RobotError(path, "sensors", "expected a mapping role -> sensor name",
-                         f"roles: {', '.join(REQUIRED_SENSORS)}")
-    for role in REQUIRED_SENSORS:
-        if role not in sensors_raw:
-            raise RobotError(path, f"sensors.{role}", "required sensor role missing")
-    sensors = {str(k): _string(path, sensors_raw, k, f"sensors.{k}") for k in sensors_raw}
-
-    joints = _names(path, doc, "joints")
-    if not joints:
-        raise RobotError(path, "joints", "at least one joint is required")
-    if len(set(joints)) != len(joints):
-        raise RobotError(path, "joints", "joint names must be unique")
-    n = len(joints)
-    actuators = _names(path, doc, "actuators")
-    if len(actuators) != n:
-        raise RobotError(path, "actuators", f"expected {n} entries (one per joint), got {len(actuators)}")
-    torque_limits = _floats(path, doc, "torque_limits", n)
-    if np.any(torque_limits <= 0):
-        raise RobotError(path, "torque_limits", "every limit must be > 0")
-    nominal_pose = _floats(path, doc, "nominal_pose", n)
-
-    feet_raw = doc["feet"]
-    if not isinstance(feet_raw, list) or not feet_raw:
-        raise RobotError(path, "feet", "expected a non-empty list of {name, site, geom}")
-    feet = []
-    for i, item in enumerate(feet_raw):
-        field = f"feet[{i}]"
-        if not isinstance(item, dict):
-            raise RobotError(path, field, "expected a mapping {name, site, geom}")
-        for key in ("name", "site", "geom"):
-            if key not in item:
-                raise RobotError(path, f"{field}.{key}", "required field missing")
-        feet.append(Foot(*(_string(path, item, k, f"{field}.{k}") for k in ("name", "site", "geom"))))
-    if len({f.name for f in feet}) != len(feet):
-        raise RobotError(path, "feet", "foot names must be unique")
-
-    fall_geoms = _names(path, doc, "fall_geoms")
-
-    nominal_height = doc["nominal_height"]
-    if isinstance(nominal_height, bool) or not isinstance(nominal_height, (int, float)) \
-            or not math.isfinite(nominal_height) or nominal_height <= 0:
-        raise RobotError(path, "nominal_height", f"expected a positive number of metres, got {nominal_height!r}")
-
-    torque_limits.setflags(write=False)
-    nominal_pose.setflags(write=False)
-    manifest = RobotManifest(
-        name=name, mjcf_path=mjcf_path, manifest_path=path, trunk=trunk, imu_site=imu_site,
-        sensors=sensors, joints=joints, actuators=actuators, torque_limits=torque_limits,
-        feet=tuple(feet), fall_geoms=fall_geoms, nominal_pose=nominal_pose,
-        nominal_height=float(nominal_height),
-    )
-    _check_against_mjcf(manifest)
-    return manifest
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise RobotErrors([RobotError(path, "manifest", f"cannot be read: {exc}")]) from None
+    return _Reader(path, text).manifest()
 
 
-# --- field readers -------------------------------------------------------------------
+class _Reader:
+    """Reads one manifest, collecting every problem with its place in the file."""
 
-def _string(path: Path, doc: dict, key: Any, field: str | None = None) -> str:
-    value = doc[key]
-    if not isinstance(value, str) or not value:
-        raise RobotError(path, field or str(key), f"expected a non-empty string, got {value!r}")
-    return value
+    def __init__(self, path: Path, text: str):
+        self.path = path
+        self.text = text
+        self.errors: list[RobotError] = []
+        self.doc = None
+
+    # --- problems ----------------------------------------------------------------------
+
+    def at(self, field_path: tuple, *, key: bool = False) -> tuple[int, int]:
+        if self.doc is None:
+            return 0, 0
+        try:
+            loc = self.doc.locs.key(field_path) if key else self.doc.locs.value(field_path)
+        except (KeyError, LookupError):
+            return 0, 0
+        return loc.line, loc.col
+
+    def problem(self, field_path: tuple, message: str, hint: str = "", *, key: bool = False) -> None:
+        line, col = self.at(field_path, key=key)
+        self.errors.append(RobotError(self.path, _dotted(field_path), message, hint, line, col))
+
+    # --- reading -----------------------------------------------------------------------
+
+    def manifest(self) -> RobotManifest:
+        from bench.errors import ScenarioErrors
+        from bench.scenario.yamlload import load_yaml_text
+
+        if not self.text.strip():
+            raise RobotErrors([RobotError(self.path, "manifest", "the file is empty",
+                                          f"a manifest needs: {', '.join(_REQUIRED_KEYS)}", 1, 1)])
+        try:
+            self.doc = load_yaml_text(self.text, str(self.path))
+        except ScenarioErrors as exc:
+            raise RobotErrors([RobotError(self.path, e.field, e.message, e.hint or "", e.line, e.col)
+                               for e in exc.errors]) from None
+        doc = self.doc.data
+        for k in _REQUIRED_KEYS:
+            if k not in doc:
+                self.errors.append(RobotError(self.path, k, "required field missing",
+                                              f"a manifest needs: {', '.join(_REQUIRED_KEYS)}", 1, 1))
+        from bench.suggest import did_you_mean
+
+        accepted = _REQUIRED_KEYS + _OPTIONAL_KEYS
+        for k in doc:
+            if k not in accepted:
+                self.problem((k,), "unknown field",
+                             did_you_mean(str(k), accepted) or f"accepted fields: {', '.join(accepted)}", key=True)
+
+        name = self.string(doc, ("name",))
+        mjcf_rel = self.string(doc, ("mjcf",))
+        mjcf_path = None
+        if mjcf_rel is not None:
+            mjcf_path = (self.path.parent / mjcf_rel).resolve()
+            if not mjcf_path.exists():
+                self.problem(("mjcf",), f"MJCF file not found: {mjcf_path}", "the path is relative to the manifest")
+                mjcf_path = None
+            elif not mjcf_path.is_file():
+                self.problem(("mjcf",), f"{mjcf_path} is not a regular file", "name the robot's MJCF file")
+                mjcf_path = None
+        trunk = self.string(doc, ("trunk",))
+        imu_site = self.string(doc, ("imu_site",))
+
+        sensors = None
+        if "sensors" in doc:
+            raw = doc["sensors"]
+            if not isinstance(raw, dict):
+                self.problem(("sensors",), "expected a mapping role -> sensor name",
+                             f"roles: {', '.join(REQUIRED_SENSORS)}")
+            else:
+                for role in REQUIRED_SENSORS:
+                    if role not in raw:
+                        self.problem(("sensors",), f"required sensor role {role!r} missing",
+                                     f"roles: {', '.join(REQUIRED_SENSORS)}")
+                values = {str(k): self.string(raw, ("sensors", k)) for k in raw}
+                if all(v is not None for v in values.values()):
+                    sensors = values
+
+        joints = self.names(doc, ("joints",))
+        n = None
+        if joints is not None:
+            if not joints:
+                self.problem(("joints",), "at least one joint is required")
+            elif len(set(joints)) != len(joints):
+                dup = sorted({j for j in joints if joints.count(j) > 1})
+                self.problem(("joints",), f"joint names must be unique ({', '.join(map(repr, dup))} repeated)")
+            else:
+                n = len(joints)
+        actuators = self.names(doc, ("actuators",))
+        if actuators is not None and n is not None and len(actuators) != n:
+            self.problem(("actuators",), f"expected {n} entries (one per joint), got {len(actuators)}")
+            actuators = None
+        torque_limits = self.floats(doc, ("torque_limits",), n)
+        if torque_limits is not None and np.any(torque_limits <= 0):
+            for i in np.flatnonzero(torque_limits <= 0):
+                self.problem(("torque_limits", int(i)), f"a torque limit must be > 0 N m, got {torque_limits[i]:g}")
+            torque_limits = None
+        nominal_pose = self.floats(doc, ("nominal_pose",), n)
+
+        feet = self.feet(doc)
+        fall_geoms = self.names(doc, ("fall_geoms",))
+
+        nominal_height = doc.get("nominal_height")
+        if "nominal_height" in doc and (isinstance(nominal_height, bool)
+                                        or not isinstance(nominal_height, (int, float))
+                                        or not math.isfinite(nominal_height) or nominal_height <= 0):
+            self.problem(("nominal_height",), f"expected a positive number of metres, got {nominal_height!r}")
+            nominal_height = None
+
+        parts = (name, mjcf_path, trunk, imu_site, sensors, joints, actuators, torque_limits, feet, fall_geoms,
+                 nominal_pose, nominal_height)
+        if self.errors or any(p is None for p in parts):
+            raise RobotErrors(self.errors or [RobotError(self.path, "manifest", "incomplete")])
+        torque_limits.setflags(write=False)
+        nominal_pose.setflags(write=False)
+        manifest = RobotManifest(
+            name=name, mjcf_path=mjcf_path, manifest_path=self.path, trunk=trunk, imu_site=imu_site,
+            sensors=sensors, joints=joints, actuators=actuators, torque_limits=torque_limits,
+            feet=tuple(feet), fall_geoms=fall_geoms, nominal_pose=nominal_pose,
+            nominal_height=float(nominal_height),
+        )
+        _check_against_mjcf(manifest, self)
+        if self.errors:
+            raise RobotErrors(self.errors)
+        return manifest
+
+    # --- field readers (None after recording a problem) --------------------------------------
+
+    def string(self, doc: dict, fp: tuple) -> str | None:
+        if fp[-1] not in doc:
+            return None   # reported as missing already
+        value = doc[fp[-1]]
+        if not isinstance(value, str) or not value:
+            self.problem(fp, f"expected a non-empty string, got {value!r}")
+            return None
+        return value
+
+    def names(self, doc: dict, fp: tuple) -> tuple[str, ...] | None:
+        if fp[-1] not in doc:
+            return None
+        value = doc[fp[-1]]
+        if not isinstance(value, list):
+            self.problem(fp, f"expected a list of names, got {value!r}")
+            return None
+        ok = True
+        for i, v in enumerate(value):
+            if not isinstance(v, str) or not v:
+                self.problem(fp + (i,), f"expected a name, got {v!r}")
+                ok = False
+        return tuple(value) if ok else None
+
+    def floats(self, doc: dict, fp: tuple, n: int | None) -> np.ndarray | None:
+        if fp[-1] not in doc:
+            return None
+        value = doc[fp[-1]]
+        if not isinstance(value, list):
+            self.problem(fp, f"expected a list of numbers, got {value!r}")
+            return None
+        ok = True
+        for i, v in enumerate(value):
+            if isinstance(v, bool) or not isinstance(v, (int, float)):
+                self.problem(fp + (i,), f"expected a number, got {v!r}")
+                ok = False
+            elif not math.isfinite(v):
+                self.problem(fp + (i,), f"entries must be finite, got {v!r}")
+                ok = False
+        if ok and n is not None and len(value) != n:
+            self.problem(fp, f"expected {n} entries (one per joint), got {len(value)}")
+            ok = False
+        return np.asarray(value, dtype=float) if ok and n is not None else None
+
+    def feet(self, doc: dict) -> list[Foot] | None:
+        if "feet" not in doc:
+            return None
+        raw = doc["feet"]
+        if not isinstance(raw, list) or not raw:
+            self.problem(("feet",), "expected a non-empty list of {name, site, geom}")
+            return None
+        feet, ok = [], True
+        for i, item in enumerate(raw):
+            fp = ("feet", i)
+            if not isinstance(item, dict):
+                self.problem(fp, "expected a mapping {name, site, geom}")
+                ok = False
+                continue
+            for key in ("name", "site", "geom"):
+                if key not in item:
+                    self.problem(fp, f"required field {key!r} missing")
+            for key in item:
+                if key not in ("name", "site", "geom"):
+                    from bench.suggest import did_you_mean
+
+                    self.problem(fp + (key,), "unknown field",
+                                 did_you_mean(str(key), ("name", "site", "geom")) or "a foot has name, site and geom",
+                                 key=True)
+            vals = [self.string(item, fp + (k,)) for k in ("name", "site", "geom")]
+            if any(v is None for v in vals) or set(item) - {"name", "site", "geom"}:
+                ok = False
+                continue
+            feet.append(Foot(*vals))
+        names = [f.name for f in feet]
+        if len(set(names)) != len(names):
+            self.problem(("feet",), "foot names must be unique")
+            ok = False
+        return feet if ok else None
 
 
-def _names(path: Path, doc: dict, key: str) -> tuple[str, ...]:
-    value = doc[key]
-    if not isinstance(value, list) or not all(isinstance(v, str) and v for v in value):
-        raise RobotError(path, key, "expected a list of names")
-    return tuple(value)
-
-
-def _floats(path: Path, doc: dict, key: str, n: int) -> np.ndarray:
-    value = doc[key]
-    if not isinstance(value, list) or not all(
-            isinstance(v, (int, float)) and not isinstance(v, bool) for v in value):
-        raise RobotError(path, key, "expected a list of numbers")
-    if len(value) != n:
-        raise RobotError(path, key, f"expected {n} entries (one per joint), got {len(value)}")
-    arr = np.asarray(value, dtype=float)
-    if not np.all(np.isfinite(arr)):
-        raise RobotError(path, key, "entries must be finite")
-    return arr
+def _dotted(fp: tuple) -> str:
+    out = ""
+    for p in fp:
+        out += f"[{p}]" if isinstance(p, int) else (f".{p}" if out else str(p))
+    return out
 
 
 # --- cross-check with the compiled MJCF ----------------------------------------------
 
-def _check_against_mjcf(man: RobotManifest) -> None:
+def _check_against_mjcf(man: RobotManifest, reader: _Reader) -> None:
+    """Every name the manifest gives must exist in the compiled MJCF with the right kind."""
     import mujoco  # local: keeps `import bench.robot.manifest` light
 
-    path = man.manifest_path
+    from bench.suggest import did_you_mean
+
     try:
         model = mujoco.MjSpec.from_file(str(man.mjcf_path)).compile()
     except Exception as exc:  # MuJoCo raises ValueError with its own parser message
-        raise RobotError(path, "mjcf", f"MJCF {man.mjcf_path.name} does not compile: {exc}") from None
+        reader.problem(("mjcf",), f"MJCF {man.mjcf_path.name} does not compile: {exc}")
+        return
 
-    def lookup(kind: mujoco.mjtObj, name: str, field: str, what: str) -> int:
+    def names_of(kind: mujoco.mjtObj, count: int) -> list[str]:
+        return [mujoco.mj_id2name(model, kind, i) or "" for i in range(count)]
+
+    def lookup(kind: mujoco.mjtObj, name: str, fp: tuple, what: str, count: int) -> int:
         idx = mujoco.mj_name2id(model, kind, name)
         if idx < 0:
-            raise RobotError(path, field, f"no {what} named {name!r} in {man.mjcf_path.name}")
+            known = [x for x in names_of(kind, count) if x]
+            hint = did_you_mean(name, known) or (f"{what}s in it: {', '.join(known[:12])}"
+                                                 + (", ..." if len(known) > 12 else "") if known else "")
+            reader.problem(fp, f"no {what} named {name!r} in {man.mjcf_path.name}", hint)
         return idx
 
-    trunk_id = lookup(mujoco.mjtObj.mjOBJ_BODY, man.trunk, "trunk", "body")
-    free = [j for j in range(model.njnt) if model.jnt_bodyid[j] == trunk_id
-            and int(model.jnt_type[j]) == int(mujoco.mjtJoint.mjJNT_FREE)]
-    if not free:
-        raise RobotError(path, "trunk", f"body {man.trunk!r} has no freejoint",
-                         "the trunk must be the floating base")
-    lookup(mujoco.mjtObj.mjOBJ_SITE, man.imu_site, "imu_site", "site")
+    BODY, SITE, SENSOR = mujoco.mjtObj.mjOBJ_BODY, mujoco.mjtObj.mjOBJ_SITE, mujoco.mjtObj.mjOBJ_SENSOR
+    JOINT, ACT, GEOM = mujoco.mjtObj.mjOBJ_JOINT, mujoco.mjtObj.mjOBJ_ACTUATOR, mujoco.mjtObj.mjOBJ_GEOM
+    trunk_id = lookup(BODY, man.trunk, ("trunk",), "body", model.nbody)
+    if trunk_id >= 0:
+        free = [j for j in range(model.njnt) if model.jnt_bodyid[j] == trunk_id
+                and int(model.jnt_type[j]) == int(mujoco.mjtJoint.mjJNT_FREE)]
+        if not free:
+            reader.problem(("trunk",), f"body {man.trunk!r} has no freejoint", "the trunk must be the floating base")
+    lookup(SITE, man.imu_site, ("imu_site",), "site", model.nsite)
     for role, sensor in man.sensors.items():
-        lookup(mujoco.mjtObj.mjOBJ_SENSOR, sensor, f"sensors.{role}", "sensor")
+        lookup(SENSOR, sensor, ("sensors", role), "sensor", model.nsensor)
 
     for i, (jname, aname) in enumerate(zip(man.joints, man.actuators)):
-        jid = lookup(mujoco.mjtObj.mjOBJ_JOINT, jname, f"joints[{i}]", "joint")
+        jid = lookup(JOINT, jname, ("joints", i), "joint", model.njnt)
+        aid = lookup(ACT, aname, ("actuators", i), "actuator", model.nu)
+        if jid < 0:
+            continue
         if int(model.jnt_type[jid]) not in (int(mujoco.mjtJoint.mjJNT_HINGE), int(mujoco.mjtJoint.mjJNT_SLIDE)):
-            raise RobotError(path, f"joints[{i}]", f"joint {jname!r} must be a hinge or slide")
-        aid = lookup(mujoco.mjtObj.mjOBJ_ACTUATOR, aname, f"actuators[{i}]", "actuator")
-        if (int(model.actuator_trntype[aid]) != int(mujoco.mjtTrn.mjTRN_JOINT)
-                or model.actuator_trnid[aid, 0] != jid):
-            raise RobotError(path, f"actuators[{i}]",
-                             f"actuator {aname!r} does not drive joint {jname!r}",
-                             "actuators must be listed in the same order as joints")
+            reader.problem(("joints", i), f"joint {jname!r} must be a hinge or slide")
+        if aid >= 0 and (int(model.actuator_trntype[aid]) != int(mujoco.mjtTrn.mjTRN_JOINT)
+                         or model.actuator_trnid[aid, 0] != jid):
+            reader.problem(("actuators", i), f"actuator {aname!r} does not drive joint {jname!r}",
+                           "actuators must be listed in the same order as joints")
         if model.jnt_limited[jid]:
             lo, hi = model.jnt_range[jid]
             if not lo - 1e-9 <= man.nominal_pose[i] <= hi + 1e-9:
-                raise RobotError(path, f"nominal_pose[{i}]",
-                                 f"{man.nominal_pose[i]} is outside the range [{lo}, {hi}] of joint {jname!r}")
+                reader.problem(("nominal_pose", i),
+                               f"{man.nominal_pose[i]} is outside the range [{lo}, {hi}] of joint {jname!r}")
 
     for i, foot in enumerate(man.feet):
-        lookup(mujoco.mjtObj.mjOBJ_SITE, foot.site, f"feet[{i}].site", "site")
-        lookup(mujoco.mjtObj.mjOBJ_GEOM, foot.geom, f"feet[{i}].geom", "geom")
+        lookup(SITE, foot.site, ("feet", i, "site"), "site", model.nsite)
+        lookup(GEOM, foot.geom, ("feet", i, "geom"), "geom", model.ngeom)
     for i, gname in enumerate(man.fall_geoms):
-        lookup(mujoco.mjtObj.mjOBJ_GEOM, gname, f"fall_geoms[{i}]", "geom")
+        lookup(GEOM, gname, ("fall_geoms", i), "geom", model.ngeom)

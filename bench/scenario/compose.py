@@ -126,10 +126,26 @@ def _extends(doc: Document, chain: list[tuple[Path, str]], roots: Sequence[Path]
         raise ScenarioErrors([doc.error(("extends",), f"more than {MAX_EXTENDS_DEPTH} levels of extends")])
     if not resolved.is_file():
         raise ScenarioErrors([doc.error(("extends",), f"{shown!r} not found",
-                                        "the path is relative to the file that says extends")])
+                                        _missing_file_hint(target, resolved))])
     base = load_yaml(shown)
     base = _extends(base, chain + [(resolved, shown)], roots)
     return merge_documents(base, doc)
+
+
+def _missing_file_hint(target: str, resolved: Path) -> str:
+    """Suggest the scenario file next to the one asked for whose name is closest."""
+    from bench.suggest import closest
+
+    base = "the path is relative to the file that says extends"
+    try:
+        names = [p.name for p in resolved.parent.iterdir() if p.suffix in (".yaml", ".yml") and p.is_file()]
+    except OSError:
+        return base
+    near = closest(resolved.name, names)
+    if not near:
+        return base
+    shown = os.path.join(os.path.dirname(target), near[0]) if os.path.dirname(target) else near[0]
+    return f"did you mean {shown!r}? {base}"
 
 
 def load_merged(path: str | Path, roots: Iterable[str | Path] = ()) -> Document:

@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import copy
 import dataclasses
-import difflib
 import hashlib
 import json
 import math
@@ -56,8 +55,9 @@ def is_union(tp: Any) -> bool:
 
 
 def did_you_mean(word: str, choices: Iterable[str]) -> str | None:
-    close = difflib.get_close_matches(word, list(choices), n=1, cutoff=0.6)
-    return f"did you mean {close[0]!r}?" if close else None
+    from bench.suggest import did_you_mean as suggest
+
+    return suggest(word, choices)
 
 
 def describe(raw: Any) -> str:

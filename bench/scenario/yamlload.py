@@ -395,6 +395,24 @@ def _sub_view(locs: Locations, key: str) -> Locations:
     return view
 
 
+def _tab_near(text: str, line: int, col: int) -> int | None:
+    """1-based column of a tab on ``line`` at or before ``col`` (where the scanner gave up), else None.
+
+    Both YAML scanners report a tab only by what they could not read ("found
+    character that cannot start any token", "found a tab character that violates
+    indentation"); the tab itself is the useful part of the message.
+    """
+    lines = text.split("\n")
+    if not 1 <= line <= len(lines):
+        return None
+    row = lines[line - 1]
+    upto = row[:max(col, 1)]
+    i = upto.rfind("\t")
+    if i < 0:
+        i = row.find("\t") if not row[:row.find("\t")].strip() else -1   # a tab in the indentation
+    return i + 1 if i >= 0 else None
+
+
 def load_yaml_text(text: str, file: str) -> Document:
     """Parse `text` (already decoded) as one scenario-like document: a mapping at the top."""
     file = str(file)
@@ -420,6 +438,11 @@ def load_yaml_text(text: str, file: str) -> Document:
         if "maximum nesting depth" in message:  # libyaml's own guard (1000 levels) fired before ours
             raise ScenarioErrors([ScenarioError(loc.file, loc.line, loc.col, "",
                                                 f"nesting deeper than {MAX_DEPTH} levels")]) from None
+        tab = _tab_near(text, loc.line, loc.col)
+        if tab is not None:
+            raise ScenarioErrors([ScenarioError(loc.file, loc.line, tab, "", "a tab character where YAML expects "
+                                                f"spaces ({message})", "indent and separate with spaces; "
+                                                "YAML does not allow tabs there")]) from None
         raise ScenarioErrors([ScenarioError(loc.file, loc.line, loc.col, "", f"YAML syntax error: {message}")]) from None
     except yaml.YAMLError as e:  # reader errors carry an offset, not a mark
         pos = getattr(e, "position", 0) or 0

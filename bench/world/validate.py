@@ -7,11 +7,10 @@ at the line of the scenario file that names it.
 
 from __future__ import annotations
 
-from difflib import get_close_matches
-
 from bench.errors import ScenarioError
 from bench.robot.locate import resolve_robot
-from bench.robot.manifest import RobotError
+from bench.robot.manifest import RobotError, RobotErrors
+from bench.suggest import did_you_mean
 
 
 def check_against_robot(scenario) -> list[ScenarioError]:
@@ -19,14 +18,21 @@ def check_against_robot(scenario) -> list[ScenarioError]:
     ref = scenario.robot
     try:
         manifest = resolve_robot(str(ref.manifest) if getattr(ref, "manifest", None) else (ref.name or "quad12"))
+    except RobotErrors as exc:
+        located = [e for e in exc.errors if e.line]
+        if not located:
+            return [scenario.error("robot", f"robot cannot be loaded: {exc}")]
+        # Each manifest problem at its own line; the scenario line that names the robot says why it matters.
+        return [scenario.error("robot", f"robot cannot be loaded: {len(exc.errors)} problem"
+                               f"{'s' if len(exc.errors) > 1 else ''} in {exc.path}")] + [
+            ScenarioError(e.path, e.line, e.col, e.field, e.message, e.hint or None) for e in exc.errors]
     except (RobotError, FileNotFoundError, OSError, ValueError, LookupError) as exc:
         return [scenario.error("robot", f"robot cannot be loaded: {exc}")]
     joints = list(manifest.joints)
 
     def check_joint(field: str, name: str) -> None:
         if name not in joints:
-            near = get_close_matches(name, joints, n=1)
-            hint = f"did you mean {near[0]!r}?" if near else f"joints of {manifest.name}: {', '.join(joints)}"
+            hint = did_you_mean(name, joints) or f"joints of {manifest.name}: {', '.join(joints)}"
             errors.append(scenario.error(field, f"robot {manifest.name!r} has no joint {name!r}", hint))
 
     for i, f in enumerate(scenario.faults):
