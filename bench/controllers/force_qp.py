@@ -48,7 +48,6 @@ import time
 from ctypes import c_int
 
 import numpy as np
-import qpsolvers
 
 _BIG_FORCE = 1e6  # stand-in for "unbounded" tangential force bounds (N)
 
@@ -114,7 +113,7 @@ class _Pattern:
         self.ub[:] = _BIG_FORCE
         self.lb[:] = -_BIG_FORCE
         self.sense = np.zeros(nx + m_ineq, dtype=c_int)
-        self.problem = qpsolvers.Problem(self.P, self.q, self.G, self.h, lb=self.lb, ub=self.ub)
+        self.problem = None   # the qpsolvers Problem over the same arrays, made when a wrapped solve needs it
 
 
 class ForceQP:
@@ -206,7 +205,7 @@ class ForceQP:
             return self.f
         pt = self._patterns[key]
         # wrench map (scaled by sqrt(2 S)), in B and, transposed, in Mq
-        np.take(r, pt.r_src, out=pt.b_vals)
+        r.take(pt.r_src, out=pt.b_vals)
         pt.b_vals *= pt.b_sgn
         pt.B.put(pt.b_dst, pt.b_vals)
         pt.Mq.put(pt.mq_dst, pt.b_vals)
@@ -236,6 +235,10 @@ class ForceQP:
                 if flag > 0:
                     x = sol
             else:
+                import qpsolvers  # imported on first use: the default direct path never needs it (nor scipy)
+
+                if pt.problem is None:
+                    pt.problem = qpsolvers.Problem(pt.P, pt.q, pt.G, pt.h, lb=pt.lb, ub=pt.ub)
                 sol = qpsolvers.solve_problem(pt.problem, solver=self.solver, initvals=pt.f_prev)
                 if sol.found:
                     x = sol.x
@@ -247,7 +250,7 @@ class ForceQP:
         self.solves += 1
         ok = x is not None
         if ok:
-            for v in x:  # cheap finiteness check on a short vector
+            for v in x.tolist():  # cheap finiteness check on a short vector
                 if not math.isfinite(v):
                     ok = False
                     break

@@ -225,13 +225,13 @@ class ForceQPController:
         self.ground_z = gz
         pd[2] = gz + self.height_nominal
         self.p_des[:] = pd
-        self.v_des[0], self.v_des[1], self.v_des[2] = vx, vy, gx * vx + gy * vy
+        v_des = [vx, vy, gx * vx + gy * vy]
+        self.v_des[:] = v_des
         self.w_des[2] = c[2]
 
-        # wrench (+ adaptive term) and stance forces
+        # wrench (+ adaptive term) and stance forces; 3-vectors handed over as Python floats (same values)
         wr = self.wrench
-        wr.update_errors(obs.privileged.base_pos, vel_arr, rot, obs.imu_gyro, self.p_des, self.v_des,
-                         self.rot_des, self.w_des)
+        wr.update_errors(pos, vel, rot, obs.imu_gyro.tolist(), pd, v_des, self.rot_des, self.w_des.tolist())
         self._adapt()
         w = wr.compute_wrench(rot)
         np.subtract(kin.foot_pos, kin.com, out=self.r)
