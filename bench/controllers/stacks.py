@@ -108,6 +108,10 @@ class ForceQPController:
 
     # ------------------------------------------------------------------ setup
     def reset(self, robot, control_dt: float) -> None:
+        if robot.num_feet != 4:
+            # The gait tables (diagonal pairs) and the foot order are a quadruped's; the bench core is not.
+            raise ValueError(f"{type(self).__name__} drives four-legged robots only; {robot.manifest.name!r} "
+                             f"has {robot.num_feet} feet")
         p = self.params
         self.robot = robot
         self.dt = float(control_dt)
