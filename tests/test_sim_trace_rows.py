@@ -59,3 +59,50 @@ def test_derived_columns_match_mujoco_kinematics(tmp_path):
         np.testing.assert_allclose(tr["com_pos"][k], mass @ d.xipos[carried] / mass.sum(), rtol=0, atol=1e-12)
         np.testing.assert_allclose(tr["base_quat"][k], d.xquat[world.trunk_body_id], rtol=0, atol=1e-15)
         np.testing.assert_allclose(tr["foot_pos"][k], d.site_xpos[world.foot_site_ids], rtol=0, atol=1e-12)
+
+
+def test_observation_is_fresh_when_ids_are_not_contiguous(tmp_path):
+    # A manifest that lists the legs in another order than the MJCF (FR, FL, RR, RL): the joint
+    # addresses and foot sites are then not one increasing range, so the loop takes the indexed
+    # path instead of views. The observation must still be this tick's state, row for row.
+    import shutil
+    from pathlib import Path
+
+    import yaml
+
+    src = Path(__file__).resolve().parents[1] / "models" / "quad12"
+    shutil.copytree(src, tmp_path / "quad12x")
+    man = yaml.safe_load((src / "manifest.yaml").read_text())
+    legs = [1, 0, 3, 2]
+    reorder = lambda xs: [xs[3 * leg + j] for leg in legs for j in range(3)]   # noqa: E731
+    for key in ("joints", "actuators", "torque_limits", "nominal_pose"):
+        man[key] = reorder(man[key])
+    man["feet"] = [man["feet"][leg] for leg in legs]
+    man["name"] = "quad12x"
+    (tmp_path / "quad12x" / "manifest.yaml").write_text(yaml.safe_dump(man))
+    path = tmp_path / "s.yaml"
+    path.write_text("name: reordered\nduration: 0.4\nrobot: {manifest: quad12x/manifest.yaml}\n")
+    sc = load_scenarios([str(path)])[0]
+    world = build_world(sc)
+    assert not np.all(np.diff(world.joint_qpos_adr) == 1) and not np.all(np.diff(world.foot_site_ids) == 1)
+
+    seen = []
+
+    class Recording(JointPDController):
+        def step(self, obs, command):
+            seen.append((obs.joint_pos.copy(), obs.joint_vel.copy(), obs.foot_contact.copy()))
+            return super().step(obs, command)
+
+    ep = run_episode(world, sc, Recording(), NominalRobot(world.robot))
+    assert ep.status == "completed" and len(seen) == len(ep.trace) == 200
+    tr = ep.trace
+    np.testing.assert_array_equal(np.array([s[0] for s in seen]), tr["qpos"][:, world.joint_qpos_adr])
+    np.testing.assert_array_equal(np.array([s[0] for s in seen]), tr["joint_pos"])
+    np.testing.assert_array_equal(np.array([s[1] for s in seen]), tr["joint_vel"])
+    np.testing.assert_array_equal(np.array([s[2] for s in seen]), tr["foot_contact"])
+    assert tr["foot_contact"][-1].all()          # standing on four feet, in the manifest's order
+    m = world.model
+    d = mujoco.MjData(m)
+    d.qpos[:] = tr["qpos"][-1]
+    mujoco.mj_kinematics(m, d)
+    np.testing.assert_array_equal(tr["foot_pos"][-1], d.site_xpos[world.foot_site_ids])

@@ -384,7 +384,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     # Views into MjData resolved once (its arrays never move), slices where the ids are contiguous.
     qpos, qvel, sensordata = d.qpos, d.qvel, d.sensordata
     s_quat, s_gyro, s_accel = sensordata[iq:iq + 4], sensordata[ig:ig + 3], sensordata[ia:ia + 3]
-    q_joints, v_joints = qpos[_as_slice(jq)], qvel[_as_slice(jv)]
+    jq_s, jv_s = _as_slice(jq), _as_slice(jv)   # indexed each tick: a slice gives a view, an index array a copy
     q_base, v_base = qpos[qa:qa + 3], qvel[va:va + 3]
     xquat_trunk = d.xquat[trunk]
     feet_s, act_s = _as_slice(feet_sites), _as_slice(act)
@@ -489,8 +489,8 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
             obs.imu_quat[:] = s_quat
             obs.imu_gyro[:] = s_gyro
             obs.imu_accel[:] = s_accel
-            obs.joint_pos[:] = q_joints
-            obs.joint_vel[:] = v_joints
+            obs.joint_pos[:] = qpos[jq_s]
+            obs.joint_vel[:] = qvel[jv_s]
             obs.privileged.base_pos[:] = q_base
             obs.privileged.base_linvel[:] = v_base
             foot_contact = obs.foot_contact
