@@ -25,15 +25,23 @@ Three measurements, each printed as a short copyable summary:
     controller and QP from the episode's own timers, physics from replaying the recorded torques
     through a bare ``mj_step`` loop (same world, same start, so the same physics), runner the rest.
 
-    python tests/benchmarks/bench_lean.py [loop|stack|profile|all] [--repeats 5]
+``suite``
+    ``bench run scenarios --no-plots --no-history --workers 2`` (the default controller) into a
+    temporary folder: wall time, the CPU time of the run and its workers (``RUSAGE_CHILDREN``), the
+    summed simulated time and the statuses. Not part of ``all`` (it takes minutes on a busy machine).
+
+    python tests/benchmarks/bench_lean.py [loop|stack|profile|suite|all] [--repeats 5] [--workers 2]
 """
 
 from __future__ import annotations
 
 import argparse
 import cProfile
+import json
 import pstats
+import resource
 import statistics
+import subprocess
 import sys
 import textwrap
 import time
@@ -241,11 +249,35 @@ def bench_profile(repeats: int) -> dict:
     return {"profile": split, "timers": med}
 
 
+def bench_suite(workers: int) -> dict:
+    with TemporaryDirectory() as tmp:
+        cmd = [sys.executable, "-m", "bench", "run", str(ROOT / "scenarios"), "--out", tmp, "--no-plots",
+               "--no-history", "--workers", str(workers)]
+        before = resource.getrusage(resource.RUSAGE_CHILDREN)
+        t0 = time.perf_counter()
+        proc = subprocess.run(cmd, capture_output=True, text=True)
+        wall = time.perf_counter() - t0
+        after = resource.getrusage(resource.RUSAGE_CHILDREN)
+        if proc.returncode not in (0, 1):
+            raise SystemExit(f"bench run exited {proc.returncode}: {proc.stderr[-2000:]}")
+        summary = json.loads((Path(tmp) / "summary.json").read_text())
+        sim = 0.0
+        for entry in summary["results"]:
+            sim += json.loads((Path(tmp) / entry["result"]).read_text())["sim_time_s"]
+    cpu = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
+    print(f"suite: bench run scenarios --no-plots --no-history --workers {workers}: {summary['total']} episodes, "
+          f"{summary['passed']} passed, {summary['failed']} failed, {summary['errors']} errors")
+    print(f"  wall time                  {wall:7.1f} s   (goal < 60 s on 2 workers)")
+    print(f"  CPU time, run + workers    {cpu:7.1f} s   ({sim:.0f} s simulated: {sim / cpu:.1f}x real time per core)")
+    return {"wall_s": wall, "cpu_s": cpu, "sim_s": sim}
+
+
 def main(argv=None) -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("what", nargs="?", default="all", choices=("loop", "stack", "profile", "all"))
+    ap.add_argument("what", nargs="?", default="all", choices=("loop", "stack", "profile", "suite", "all"))
     ap.add_argument("--repeats", type=int, default=5)
     ap.add_argument("--duration", type=float, default=5.0, help="standing episode length for 'loop', s")
+    ap.add_argument("--workers", type=int, default=2, help="worker processes for 'suite'")
     args = ap.parse_args(argv)
     import bench
 
@@ -257,6 +289,8 @@ def main(argv=None) -> None:
         bench_stack(args.repeats)
     if args.what in ("profile", "all"):
         bench_profile(max(args.repeats // 2, 1))
+    if args.what == "suite":
+        bench_suite(args.workers)
 
 
 if __name__ == "__main__":
