@@ -249,9 +249,9 @@ def bench_profile(repeats: int) -> dict:
     return {"profile": split, "timers": med}
 
 
-def bench_suite(workers: int) -> dict:
+def bench_suite(workers: int, scenarios: Path) -> dict:
     with TemporaryDirectory() as tmp:
-        cmd = [sys.executable, "-m", "bench", "run", str(ROOT / "scenarios"), "--out", tmp, "--no-plots",
+        cmd = [sys.executable, "-m", "bench", "run", str(scenarios), "--out", tmp, "--no-plots",
                "--no-history", "--workers", str(workers)]
         before = resource.getrusage(resource.RUSAGE_CHILDREN)
         t0 = time.perf_counter()
@@ -278,6 +278,7 @@ def main(argv=None) -> None:
     ap.add_argument("--repeats", type=int, default=5)
     ap.add_argument("--duration", type=float, default=5.0, help="standing episode length for 'loop', s")
     ap.add_argument("--workers", type=int, default=2, help="worker processes for 'suite'")
+    ap.add_argument("--scenarios", type=Path, default=ROOT / "scenarios", help="folder for 'suite'")
     args = ap.parse_args(argv)
     import bench
 
@@ -290,7 +291,7 @@ def main(argv=None) -> None:
     if args.what in ("profile", "all"):
         bench_profile(max(args.repeats // 2, 1))
     if args.what == "suite":
-        bench_suite(args.workers)
+        bench_suite(args.workers, args.scenarios)
 
 
 if __name__ == "__main__":
