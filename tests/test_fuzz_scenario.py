@@ -300,12 +300,16 @@ def hostile_documents(draw):
 @FUZZ
 @given(hostile_documents())
 def test_hostile_yaml_is_refused_without_running_anything(work, text):
+    before = os.getcwd()
     os.chdir(work)   # a python/object tag that ran would leave MARKER here
-    path = work / "hostile.yaml"
-    path.write_text(text, encoding="utf-8")
-    rc, err = check_file(path)
-    assert_reported(rc, err, path, may_be_valid=False, n_lines=text.count("\n"))
-    assert not (work / MARKER).exists()
+    try:
+        path = work / "hostile.yaml"
+        path.write_text(text, encoding="utf-8")
+        rc, err = check_file(path)
+        assert_reported(rc, err, path, may_be_valid=False, n_lines=text.count("\n"))
+        assert not (work / MARKER).exists()
+    finally:
+        os.chdir(before)   # later tests in this worker use paths relative to where pytest started
 
 
 # --------------------------------------------------------------------------- names and result folders

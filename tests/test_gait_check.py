@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 
@@ -59,7 +61,7 @@ def test_reference_stack_trots_by_the_definition(tmp_path):
     from bench.sim.episode import run_episode
     from bench.world.build import build_world, manifest_for
 
-    sc = load_scenarios(["scenarios/locomotion/forward.yaml"])[0]
+    sc = load_scenarios([str(Path(__file__).resolve().parents[1] / "scenarios/locomotion/forward.yaml")])[0]
     man = manifest_for(sc)
     _, ctrl = registry.make("force-qp-l1")
     ep = run_episode(build_world(sc, man), sc, ctrl, NominalRobot(man), seed=sc.seed)

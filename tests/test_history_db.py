@@ -10,7 +10,7 @@ from pathlib import Path
 
 from bench.cli import main
 from bench.report.baseline import tolerance_for
-from bench.report.history import History, first_regression, git_state, record_results
+from bench.report.history import SCHEMA_VERSION, History, first_regression, git_state, record_results
 
 SCENARIO = Path(__file__).parent / "fixtures" / "bench_plugin" / "stand-1s.yaml"
 
@@ -33,7 +33,7 @@ def test_round_trip_and_wal_mode(tmp_path):
     assert entries[0].criteria[0]["limit"] == 0.08 and entries[0].git_commit is None
     con = sqlite3.connect(db)
     assert con.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
-    assert con.execute("PRAGMA user_version").fetchone()[0] == 1
+    assert con.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION == 2
 
 
 def _writer(db: str, uid: str, worker: int, n: int, start) -> None:
