@@ -1,14 +1,18 @@
-"""Atomic file writes, shared by every stage that writes a file.
+"""File helpers shared by every stage: atomic writes, and the regular-file test before reading.
 
 A temporary file in the same folder, flushed and synced, then renamed over the
 target: a run killed at any moment leaves either the old file or the new one,
 never half of one. The file gets the mode an ordinary ``open()`` would give it
 (``mkstemp`` alone makes it readable by its owner only).
+
+A file a user names is read only when it is a regular file: opening a FIFO
+waits for a writer forever, and a device may never end.
 """
 
 from __future__ import annotations
 
 import os
+import stat
 import tempfile
 from pathlib import Path
 
@@ -34,3 +38,25 @@ def write_atomic(path: str | Path, data: bytes) -> None:
         except FileNotFoundError:
             pass
         raise
+
+
+def not_regular(path: str | Path) -> str | None:
+    """What ``path`` is when it exists but is not a regular file (``"a FIFO (named pipe)"``...), else None.
+
+    Follows symbolic links, and never opens the file (opening a FIFO for reading blocks).
+    """
+    try:
+        mode = os.stat(path).st_mode
+    except (OSError, ValueError):   # missing, unreadable folder, NUL in the name: reported elsewhere
+        return None
+    if stat.S_ISREG(mode):
+        return None
+    if stat.S_ISFIFO(mode):
+        return "a FIFO (named pipe)"
+    if stat.S_ISDIR(mode):
+        return "a folder"
+    if stat.S_ISSOCK(mode):
+        return "a socket"
+    if stat.S_ISCHR(mode) or stat.S_ISBLK(mode):
+        return "a device"
+    return "not a regular file"

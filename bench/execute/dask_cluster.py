@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import itertools
 import logging
+import time
 from collections import deque
 from typing import Callable, Iterator
 
@@ -27,6 +28,11 @@ from bench.execute.executors import ExecutorError, OnError, default_workers, des
 #: Tries of one episode whose worker died (the first death may have been a neighbour's fault).
 MAX_TRIES = 2
 CONNECT_TIMEOUT_S = 15
+#: With no worker connected for this long, the episodes not finished become errors: a scheduler
+#: holds tasks for workers that may come back, so without this the run would wait forever.
+NO_WORKER_TIMEOUT_S = 60.0
+#: How often a wait for results looks whether any worker is left.
+WORKER_POLL_S = 1.0
 
 
 def _import_distributed():
@@ -133,6 +139,16 @@ class DaskExecutor:
                 if not ac.count():
                     submit_more()
                     continue
+                if not self._wait_ready(ac):
+                    reason = (f"no Dask worker was left on {self.address} for {NO_WORKER_TIMEOUT_S:g} s "
+                              f"(the last one was lost); the episode did not finish")
+                    if on_error is None:
+                        raise ExecutorError(reason)
+                    for fut in list(ac.futures):
+                        fut.cancel()
+                    for i in [index.pop(k) for k in list(index)] + list(todo):
+                        yield i, on_error(jobs[i], reason)
+                    return
                 fut = next(ac)
                 i = index.pop(fut.key)
                 try:
@@ -159,6 +175,28 @@ class DaskExecutor:
         finally:
             for fut in list(ac.futures):
                 fut.cancel()
+
+    def _wait_ready(self, ac) -> bool:
+        """Wait until a result is ready; False when no worker has been connected for NO_WORKER_TIMEOUT_S."""
+        alone_since = None
+        next_look = time.monotonic() + WORKER_POLL_S
+        while not ac.has_ready():
+            time.sleep(0.01)
+            now = time.monotonic()
+            if now < next_look:
+                continue
+            next_look = now + WORKER_POLL_S
+            try:
+                workers = len(self.client.nthreads())
+            except Exception:  # noqa: BLE001 - the scheduler itself is gone: no worker either
+                workers = 0
+            if workers:
+                alone_since = None
+            elif alone_since is None:
+                alone_since = now
+            elif now - alone_since >= NO_WORKER_TIMEOUT_S:
+                return False
+        return True
 
     def close(self) -> None:
         client, self.client = getattr(self, "client", None), None

@@ -13,6 +13,7 @@ from collections.abc import Iterable
 from pathlib import Path
 
 from bench.errors import ScenarioError, ScenarioErrors
+from bench.fileio import not_regular
 from bench.scenario.compose import _inside, allowed_roots, expand_matrix, load_merged
 from bench.scenario.schema import Scenario
 from bench.scenario.trials import check_randomize
@@ -69,6 +70,11 @@ def named_file_problems(scenario: Scenario, roots: list[Path]) -> list[ScenarioE
         loc = doc.locs.value(("mjcf",))
         return [ScenarioError(loc.file, loc.line, loc.col, "mjcf", f"MJCF {mjcf!r} is outside the allowed folders",
                               _OUTSIDE_HINT)]
+    special = not_regular(resolved.parent / mjcf)
+    if special is not None:
+        loc = doc.locs.value(("mjcf",))
+        return [ScenarioError(loc.file, loc.line, loc.col, "mjcf", f"MJCF {mjcf!r} is {special}, not a regular file",
+                              "give the path of the robot's MJCF file")]
     return mjcf_file_problems(Path(manifest).parent / mjcf, roots)
 
 

@@ -13,6 +13,9 @@ keeps its line and column. A document type declaration is refused outright:
 MJCF has no use for one, and entity declarations are the way to expand a small
 file into a huge one or to read another file. Limits: each file at most
 ``MAX_BYTES``, includes at most ``MAX_DEPTH`` deep and ``MAX_FILES`` files in all.
+Only regular files are read: a FIFO (named pipe), socket, device or folder where
+a file is named is a problem at that name (reading a FIFO would wait for a
+writer forever, in this scanner or in MuJoCo).
 
 Where a relative path is looked for, as MuJoCo 4.0.0 does (checked by hand: an
 include is found next to the including file and also next to the main file;
@@ -26,6 +29,8 @@ from __future__ import annotations
 import xml.parsers.expat
 from dataclasses import dataclass
 from pathlib import Path
+
+from bench.fileio import not_regular
 
 MAX_BYTES = 64 << 20   # 64 MiB: the bundled MJCF is 10 KiB; mesh-heavy robots stay far below
 MAX_DEPTH = 16
@@ -80,6 +85,10 @@ class _Scan:
         self.files += 1
         if self.files > MAX_FILES:
             self.problems.append(MjcfProblem(shown, 1, 1, "include", f"more than {MAX_FILES} MJCF files included"))
+            return
+        special = not_regular(path)
+        if special is not None:
+            self.problems.append(MjcfProblem(shown, 1, 1, "mjcf", f"the MJCF file is {special}, not a regular file"))
             return
         try:
             size = path.stat().st_size
@@ -145,6 +154,14 @@ class _Scan:
             place = self.main_dir / folder / value
             self.refs.append(FileRef(file, line, col, f"{tag}.{attr}", value, (place,)))
         self.assets = []
+        for ref in self.refs:
+            for place in ref.candidates:
+                special = not_regular(place)
+                if special is not None:
+                    self.problems.append(MjcfProblem(ref.file, ref.line, ref.col, ref.field,
+                                                     f"file {ref.value!r} is {special}, not a regular file "
+                                                     f"(MuJoCo reads regular files only)"))
+                    break
 
 
 class _Refused(Exception):

@@ -349,7 +349,9 @@ class _Builder:
                 continue
             if not isinstance(key_node, ScalarNode) or key_node.tag != _TAG + "str":
                 shown = key_node.value if isinstance(key_node, ScalarNode) else "a " + type(key_node).__name__
-                raise self.fail(key_node, path, f"mapping keys must be plain strings, got {shown!r}",
+                # at the top level there is no field above the key: name the key itself
+                where = path if path or not isinstance(key_node, ScalarNode) else (str(key_node.value),)
+                raise self.fail(key_node, where, f"mapping keys must be plain strings, got {shown!r}",
                                 "quote the key")
             key = key_node.value
             if len(key) > MAX_STRING_CHARS:

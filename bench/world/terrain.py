@@ -32,6 +32,13 @@ SECTION_DEPTH_M = 1.0
 RUN_OUT_M = 30.0
 #: Width of the run-in and run-out sections, m (pieces use their own width).
 RUN_OUT_WIDTH_M = 20.0
+#: Stretches of ground shorter than this along x get no geom (MuJoCo refuses a box of size 0, and
+#: a valid length such as 1e-300 m is 0 once added to a start); their height still counts.
+MIN_GEOM_LENGTH_M = 1e-9
+#: Slopes gentler than this (but not flat) hang their box on a fixed body of their own (see ``_slope``).
+#: MuJoCo 4.0.0 drops a geom rotation of 1e-4 deg (quaternion part 8.7e-7) and keeps 3e-4 deg (2.6e-6),
+#: measured with ``geom_sameframe``; this bound is 0.01 deg (8.7e-5), far from either.
+BODY_FRAME_SLOPE_DEG = 0.01
 
 TERRAIN_RGBA = (0.52, 0.55, 0.50, 1.0)
 STEP_RGBA = (0.62, 0.58, 0.50, 1.0)
@@ -67,7 +74,9 @@ class TerrainContext:
     def box(self, kind: str, x0: float, x1: float, top: float, width: float,
             rgba=TERRAIN_RGBA, friction: float | None = None, solref=None,
             y_center: float = 0.0, depth: float = SECTION_DEPTH_M) -> str:
-        """Add an axis-aligned box spanning x in [x0, x1] whose top surface is at ``top``."""
+        """Add an axis-aligned box spanning x in [x0, x1] whose top surface is at ``top`` (none if too short)."""
+        if not x1 - x0 >= MIN_GEOM_LENGTH_M:
+            return ""
         name = self.name(kind)
         mu = self.friction if friction is None else friction
         g = self.spec.worldbody.add_geom(
@@ -120,6 +129,11 @@ def _slope(piece, ctx: TerrainContext) -> None:
     x0, x1 = piece.start, piece.start + piece.length
     z0 = ctx.level
     rise = piece.length * math.tan(a)
+    t = math.tan(a)
+    ctx.sections.append(Section(x0, x1, lambda x, y, z0=z0, x0=x0, t=t: z0 + (np.asarray(x) - x0) * t, "slope"))
+    ctx.level = z0 + rise
+    if not x1 - x0 >= MIN_GEOM_LENGTH_M:
+        return
     name = ctx.name("slope")
     half_len = piece.length / (2.0 * math.cos(a))
     # A box tilted about y whose top face runs exactly from (x0, z0) to (x1, z0 + rise).
@@ -128,15 +142,17 @@ def _slope(piece, ctx: TerrainContext) -> None:
     # Shift the centre down along the surface normal so the top face is the slope.
     nx, nz = -math.sin(a), math.cos(a)
     quat = [math.cos(-a / 2.0), 0.0, math.sin(-a / 2.0), 0.0]
-    ctx.spec.worldbody.add_geom(
-        name=name, type=BOX, size=[half_len, piece.width / 2.0, d],
-        pos=[cx - nx * d, 0.0, cz - nz * d], quat=quat,
+    pos = [cx - nx * d, 0.0, cz - nz * d]
+    holder, frame = ctx.spec.worldbody, dict(pos=pos, quat=quat)
+    if a != 0.0 and abs(piece.angle_deg) < BODY_FRAME_SLOPE_DEG:
+        # MuJoCo's compiler takes a geom rotation this close to none for none (the geom then shares its
+        # body's frame: a flat box half-way up); a fixed body of its own keeps the rotation.
+        holder, frame = ctx.spec.worldbody.add_body(name=name, **frame), {}
+    holder.add_geom(
+        name=name, type=BOX, size=[half_len, piece.width / 2.0, d], **frame,
         rgba=list(TERRAIN_RGBA), friction=[ctx.friction, 0.005, 0.0001], priority=1, contype=1, conaffinity=3,
     )
     ctx.geom_names.append(name)
-    t = math.tan(a)
-    ctx.sections.append(Section(x0, x1, lambda x, y, z0=z0, x0=x0, t=t: z0 + (np.asarray(x) - x0) * t, "slope"))
-    ctx.level = z0 + rise
 
 
 @terrain_piece("stairs")
@@ -236,6 +252,9 @@ def rough_heights(nrow: int, ncol: int, cell_size: float, wavelength: float, see
 @terrain_piece("rough")
 def _rough(piece, ctx: TerrainContext) -> None:
     x0, x1 = piece.start, piece.start + piece.length
+    if not x1 - x0 >= MIN_GEOM_LENGTH_M:
+        ctx.sections.append(Section(x0, x1, _flat(ctx.level), "rough"))
+        return
     ncol = max(int(round(piece.length / piece.cell_size)) + 1, 3)
     nrow = max(int(round(piece.width / piece.cell_size)) + 1, 3)
     seed = piece.seed if piece.seed is not None else ctx_seed(ctx)
@@ -273,6 +292,32 @@ def ctx_seed(ctx: TerrainContext) -> int:
     return getattr(ctx, "seed", 0)
 
 
+@dataclass(frozen=True)
+class GroundTable:
+    """Ground height along the path (y = 0) sampled every ``1 / per_m`` m: a per-tick lookup.
+
+    ``heights[i]`` is the exact height query at ``xs[i]``. Both come from one array of sample points,
+    so they always have the same length whatever the extent; :meth:`index` maps a position to the
+    sample at or just before it, clamped to the first and last sample.
+    """
+
+    x0: float
+    per_m: float
+    xs: np.ndarray
+    heights: np.ndarray
+
+    @property
+    def last(self) -> int:
+        return len(self.heights) - 1
+
+    def index(self, x: float) -> int:
+        return min(max(int((x - self.x0) * self.per_m), 0), self.last)
+
+    def at(self, x: float) -> float:
+        """Table height for the trunk at ``x`` (the sample at or just before it)."""
+        return float(self.heights[self.index(x)])
+
+
 @dataclass
 class Terrain:
     """The built terrain: geom names and an exact height query ``height_at(x, y)``."""
@@ -289,9 +334,18 @@ class Terrain:
         return (self.sections[0].x0, self.sections[-1].x1)
 
     def height_at(self, x, y) -> np.ndarray:
-        """Ground height under points (x, y), vectorised; outside all pieces the nearest flat level."""
+        """Ground height under points (x, y), vectorised; outside all pieces the nearest flat level.
+
+        ``x`` and ``y`` broadcast against each other (a scalar ``y`` is a line at that y); shapes that
+        do not broadcast raise ``ValueError`` naming both.
+        """
         x = np.atleast_1d(np.asarray(x, dtype=float))
         y = np.atleast_1d(np.asarray(y, dtype=float))
+        if x.shape != y.shape:
+            try:
+                x, y = (np.array(a) for a in np.broadcast_arrays(x, y))
+            except ValueError:
+                raise ValueError(f"height_at: x of shape {x.shape} and y of shape {y.shape} do not match") from None
         out = np.zeros_like(x)
         if self.is_plane:
             return out
@@ -301,6 +355,19 @@ class Terrain:
             m = idx == i
             out[m] = self.sections[i].height(x[m], y[m])
         return out
+
+    def ground_table(self, per_m: float) -> GroundTable:
+        """The ground along y = 0 over :meth:`extent_x`, ``per_m`` samples per metre (at least one)."""
+        x0, x1 = self.extent_x()
+        # np.arange decides the number of samples and their places; nothing else recounts them
+        # (a separately computed ceil((x1 - x0) * per_m) is one more for some extents).
+        xs = np.arange(x0, x1, 1.0 / per_m)
+        if not len(xs):
+            xs = np.array([x0], dtype=float)
+        xs.setflags(write=False)
+        heights = self.height_at(xs, 0.0)
+        heights.setflags(write=False)
+        return GroundTable(float(x0), float(per_m), xs, heights)
 
 
 def build_terrain(spec: mujoco.MjSpec, pieces, friction: float, seed: int) -> Terrain:

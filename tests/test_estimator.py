@@ -1,0 +1,280 @@
+"""The reference state estimator (linear Kalman filter, IMU + leg kinematics) against outside references
+and against the simulator's truth.
+
+Math checks use synthetic observations of the bundled robot's nominal model. Episode checks run
+short versions of bundled scenarios with the reference stack ``force-qp-l1`` driving, feed every
+observation (after the bench's sensor faults) to the estimator, and compare with the trunk state
+the Trace recorded at the same instant (see ``tests/estimator_eval.py``).
+
+Bars, and why:
+- trunk velocity RMS error < 0.05 m/s: a tenth of the 0.5 m/s trotting command, the accuracy a
+  velocity-tracking controller needs to pass the bench's 0.1 m/s velocity criterion with room to
+  spare (common practice, no source).
+- trunk height error < 0.05 m at every tick: under a fifth of the 0.29 m standing height, what a
+  height-holding controller can absorb without its legs running out of reach (common practice, no
+  source).
+- horizontal drift < 5 % of the distance travelled: leg-and-IMU odometry is commonly quoted at a
+  few per cent of distance on good contact (from memory, no source at hand).
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import mujoco
+import numpy as np
+import pytest
+
+from bench.controllers.base import Observation
+from bench.controllers.estimator import EstimatorParams, LegImuEstimator
+from bench.robot import NominalRobot, resolve_robot
+from estimator_eval import estimator_errors, run_with_estimator, scenario_from
+
+ROBOT = NominalRobot(resolve_robot("quad12"))
+FIXTURES = Path(__file__).resolve().parent / "fixtures"
+DT = 0.002
+G = np.array(ROBOT.model.opt.gravity, dtype=float)
+
+VEL_RMSE_BAR_MPS = 0.05
+HEIGHT_ERR_BAR_M = 0.05
+DRIFT_BAR_PCT = 5.0
+
+
+def _quat(yaw: float, pitch: float) -> np.ndarray:
+    q = np.zeros(4)
+    mujoco.mju_euler2Quat(q, np.array([0.0, pitch, yaw]), "xyz")
+    return q
+
+
+def _static_obs(quat=(1.0, 0.0, 0.0, 0.0), contact=True, robot=ROBOT) -> Observation:
+    obs = Observation.zeros(robot.num_joints, robot.num_feet)
+    obs.privileged = None                       # the estimator must never need the truth
+    obs.imu_quat[:] = quat
+    obs.joint_pos[:] = robot.nominal_pose
+    obs.foot_contact[:] = contact
+    rot = np.zeros(9)
+    mujoco.mju_quat2Mat(rot, obs.imu_quat)
+    obs.imu_accel[:] = rot.reshape(3, 3).T @ (-G)   # at rest the accelerometer reads -g, body frame
+    return obs
+
+
+# ----------------------------------------------------------------------------- math against references
+
+def test_trunk_frame_feet_agree_with_the_world_posed_kinematics():
+    """Reference: MuJoCo's kinematics of the robot posed in the world (the stacks' LegKinematics, which
+    runs mj_kinematics and mj_jacSite with the trunk where it is): foot = p + R r, foot velocity =
+    v + R rdot, for a random pose, orientation and motion."""
+    from bench.controllers.kinematics import LegKinematics
+    from bench.controllers.trunk_kinematics import TrunkFrameFeet
+
+    rng = np.random.default_rng(7)
+    obs = Observation.zeros(ROBOT.num_joints, ROBOT.num_feet)
+    q = rng.normal(size=4)
+    obs.imu_quat[:] = q / np.linalg.norm(q)
+    obs.imu_gyro[:] = rng.normal(size=3)
+    obs.joint_pos[:] = np.asarray(ROBOT.nominal_pose) + rng.normal(scale=0.2, size=ROBOT.num_joints)
+    obs.joint_vel[:] = rng.normal(size=ROBOT.num_joints)
+    obs.privileged.base_pos[:] = (0.4, -0.3, 0.5)
+    obs.privileged.base_linvel[:] = (0.2, 0.1, -0.3)
+    world = LegKinematics(ROBOT, with_bias=False)
+    world.update(obs)
+    feet = TrunkFrameFeet(ROBOT)
+    feet.update(obs.joint_pos, obs.joint_vel, obs.imu_gyro)
+    rot = np.zeros(9)
+    mujoco.mju_quat2Mat(rot, obs.imu_quat)
+    rot = rot.reshape(3, 3)
+    assert np.allclose(obs.privileged.base_pos + feet.foot_pos @ rot.T, world.foot_pos, atol=1e-12)
+    assert np.allclose(obs.privileged.base_linvel + feet.foot_vel @ rot.T, world.foot_vel, atol=1e-12)
+    assert np.allclose(feet.foot_radius_m, ROBOT.model.geom_size[ROBOT.foot_geom_ids][:, 0])
+
+
+def test_prediction_matches_constant_acceleration_kinematics():
+    """Reference: s = s0 + v0 t + a t^2 / 2, v = v0 + a t (textbook kinematics), piecewise over two
+    constant accelerations, with the trunk tilted so the accelerometer must be rotated into the world.
+    No foot in contact: the legs say nothing about the trunk's motion."""
+    est = LegImuEstimator(ROBOT, DT)
+    quat = _quat(yaw=0.5, pitch=0.2)
+    rot = np.zeros(9)
+    mujoco.mju_quat2Mat(rot, quat)
+    rot = rot.reshape(3, 3)
+    obs = _static_obs(quat, contact=False)
+    est.reset(initial_height_m=1.0, initial_xy_m=(0.3, -0.2))
+    s0 = est.update(obs).base_pos.copy()
+    a1, a2 = np.array([0.8, -0.5, 0.3]), np.array([-1.2, 0.4, -0.6])
+    n1, n2 = 150, 250
+    for a, n in ((a1, n1), (a2, n2)):
+        obs.imu_accel[:] = rot.T @ (a - G)        # specific force, body frame
+        for k in range(n):
+            obs.t += DT
+            s = est.update(obs)
+    t1, t2 = n1 * DT, n2 * DT
+    v1 = a1 * t1
+    s1 = s0 + a1 * t1 ** 2 / 2
+    s_ref = s1 + v1 * t2 + a2 * t2 ** 2 / 2
+    v_ref = v1 + a2 * t2
+    assert np.allclose(s.base_pos, s_ref, atol=1e-6), (s.base_pos, s_ref)
+    assert np.allclose(s.base_linvel, v_ref, atol=1e-6), (s.base_linvel, v_ref)
+    assert s.n_stance == 0
+
+
+@pytest.mark.parametrize("robot_name", ["quad12", "quad30", "hex18"])
+def test_static_robot_converges_to_the_kinematic_height(robot_name):
+    """Reference: MuJoCo's own forward kinematics of the robot at its nominal pose (feet at their
+    sphere radius above z = 0). Nearly noiseless measurements, ground-height pseudo-measurement at 0,
+    a start 0.2 m off in height and 0.3 m/s off in speed: the filter must land on the kinematic height
+    and a zero velocity. Both bundled robots and a six-legged test robot (nothing assumes four feet)."""
+    robot = ROBOT if robot_name == "quad12" else NominalRobot(resolve_robot(
+        str(FIXTURES / "hex18" / "manifest.yaml") if robot_name == "hex18" else robot_name))
+    m = robot.model
+    d = mujoco.MjData(m)
+    d.qpos[:] = robot.nominal_qpos
+    mujoco.mj_kinematics(m, d)
+    trunk_z = d.xpos[robot.trunk_body_id][2]
+    feet_z = d.site_xpos[robot.foot_site_ids][:, 2]
+    radius = m.geom_size[robot.foot_geom_ids][:, 0]
+    h_ref = float(np.mean(trunk_z - feet_z + radius))
+
+    est = LegImuEstimator(robot, DT, kin_pos_noise_m=1e-6, kin_vel_noise_mps=1e-6, ground_height_noise_m=1e-6,
+                          init_pos_std_m=1.0, init_vel_std_mps=1.0)
+    obs = _static_obs(robot=robot)
+    est.reset(initial_height_m=h_ref + 0.2)
+    est.update(obs)
+    est.set_ground_height(0.0)
+    est.x[:, 1] = 0.3                      # a wrong starting speed as well
+    for _ in range(200):
+        obs.t += DT
+        s = est.update(obs)
+    assert s.base_pos[2] == pytest.approx(h_ref, abs=1e-4)
+    assert np.all(np.abs(s.base_linvel) < 1e-4)
+    assert np.allclose(s.foot_pos[:, 2], radius, atol=1e-4)
+    assert s.n_stance == robot.num_feet and np.all(s.pos_std_m[2] < 1e-3)
+
+
+def test_state_is_updated_in_place_and_does_not_depend_on_the_truth():
+    """A controller may keep references to the returned arrays (as it may to the observation's)."""
+    est = LegImuEstimator(ROBOT, DT)
+    obs = _static_obs()
+    est.reset()
+    s = est.update(obs)
+    refs = (s.base_pos, s.base_linvel, s.foot_pos, s.pos_std_m, s.vel_std_mps)
+    obs.foot_contact[0] = False
+    obs.imu_accel[0] += 1.0
+    s2 = est.update(obs)
+    assert s2 is s and all(a is b for a, b in zip(refs, (s2.base_pos, s2.base_linvel, s2.foot_pos, s2.pos_std_m,
+                                                           s2.vel_std_mps)))
+    assert s.base_linvel[0] > 0.0 and s.n_stance == ROBOT.num_feet - 1
+
+
+@pytest.mark.parametrize("field,value", [("accel_noise_mps2", 0.0), ("kin_vel_noise_mps", -1.0),
+                                         ("kin_pos_noise_m", (0.01, 0.01)), ("ground_height_noise_m", float("nan")),
+                                         ("init_vel_std_mps", "big")])
+def test_bad_parameters_are_named(field, value):
+    with pytest.raises(ValueError, match=f"EstimatorParams.{field} must be"):
+        LegImuEstimator(ROBOT, DT, **{field: value})
+    with pytest.raises(ValueError, match="control_dt"):
+        LegImuEstimator(ROBOT, 0.0)
+
+
+def test_parameters_per_world_axis_are_accepted():
+    p = EstimatorParams(kin_vel_noise_mps=(0.1, 0.1, 0.3))
+    est = LegImuEstimator(ROBOT, DT, p)
+    est.reset()
+    s = est.update(_static_obs())
+    assert np.all(np.isfinite(s.base_pos))
+
+
+# ----------------------------------------------------------------------------- against the simulator's truth
+
+# Short runs: the command comes at 0.3 s instead of 1 s so a few seconds cover over a metre.
+EARLY_START = """
+commands:
+  - {at: 0.0}
+  - {at: 0.3, vx: 0.5}
+"""
+NOISE = """
+faults:
+  - sensor_noise: {sensor: imu_accel, std: 1.0}
+  - sensor_noise: {sensor: joint_pos, std: 0.005}
+  - sensor_noise: {sensor: joint_vel, std: 0.3}
+"""
+TROT_S = 3.0
+
+
+@pytest.fixture(scope="module")
+def trot_runs(tmp_path_factory):
+    """Trotting at 0.5 m/s on flat ground (bundled forward.yaml, 3 s): clean, with noisy sensors, and
+    clean with the ground-height pseudo-measurement on (the ground being flat at the start height)."""
+    tmp = tmp_path_factory.mktemp("est-trot")
+    out = {}
+    for label, extra, params in (("clean", EARLY_START, {}), ("noisy", EARLY_START + NOISE, {}),
+                                 ("flat_ground", EARLY_START, {"ground_height_noise_m": 0.01})):
+        sc = scenario_from("scenarios/locomotion/forward.yaml", TROT_S, extra, tmp)
+        ep, probe = run_with_estimator(sc, **params)
+        out[label] = estimator_errors(ep.trace, probe, ep.status)
+    return out
+
+
+def _check_bars(e):
+    assert e.status == "completed"
+    assert e.distance_m > 1.0, "the run must travel for drift to mean anything"
+    assert e.vel_rmse_mps > 0.0 and e.height_err_max_m > 0.0, "a zero error means the truth leaked in"
+    assert e.vel_rmse_mps < VEL_RMSE_BAR_MPS, e
+    assert e.height_err_max_m < HEIGHT_ERR_BAR_M, e
+    assert e.drift_pct < DRIFT_BAR_PCT, e
+
+
+def test_trot_on_flat_ground_meets_the_bars(trot_runs):
+    _check_bars(trot_runs["clean"])
+
+
+def test_known_flat_ground_bounds_the_height_error(trot_runs):
+    """Height is seen only through the legs, so it drifts; telling the filter the stance feet are on
+    the (flat) ground it started on must cut that drift, and change nothing else much."""
+    clean, flat = trot_runs["clean"], trot_runs["flat_ground"]
+    assert flat.height_err_max_m < clean.height_err_max_m
+    _check_bars(flat)
+
+
+def test_slope_climb_meets_the_bars(tmp_path):
+    """12 degree ramp (bundled slope-12deg-up.yaml, 5 s with the 0.4 m/s command from 0.3 s: about 1.2 m
+    up the ramp)."""
+    sc = scenario_from("scenarios/terrain/slope-12deg-up.yaml", 5.0, EARLY_START.replace("0.5", "0.4"), tmp_path)
+    ep, probe = run_with_estimator(sc)
+    e = estimator_errors(ep.trace, probe, ep.status)
+    _check_bars(e)
+    assert ep.trace["base_pos"][-1, 2] - ep.trace["base_pos"][0, 2] > 0.2, "the run must climb"
+
+
+def test_sensor_noise_raises_the_error_and_the_inconsistency_but_stays_bounded(trot_runs):
+    """Accelerometer 1 m/s^2, encoders 0.005 rad, joint velocities 0.3 rad/s (std, the bench's
+    sensor_noise fault): worse than clean, on every figure the filter reports, yet within the bars."""
+    clean, noisy = trot_runs["clean"], trot_runs["noisy"]
+    assert noisy.vel_rmse_mps > clean.vel_rmse_mps
+    assert noisy.nis_median > clean.nis_median
+    _check_bars(noisy)
+
+
+def test_frozen_encoders_make_the_estimate_go_wrong(tmp_path):
+    """Bundled frozen-encoders.yaml, with the freeze at 2 s instead of 3 s: joint angles stop updating
+    (the robot falls soon after). The leg odometry then reports stale legs; the velocity error and the
+    position error must grow faster after the freeze than in the second before it."""
+    freeze_s = 2.0
+    sc = scenario_from("scenarios/faults/frozen-encoders.yaml", 3.0, EARLY_START.replace("0.5", "0.4") + f"""
+faults:
+  - sensor_freeze: {{at: {freeze_s}, sensor: joint_pos}}
+""", tmp_path)
+    ep, probe = run_with_estimator(sc)
+    tr = ep.trace
+    n = min(len(tr), probe.k)
+    t = tr["t"][:n]
+    assert t[-1] > freeze_s + 0.2
+    verr = np.linalg.norm(probe.vel[:n] - tr["base_linvel"][:n], axis=1)
+    perr = np.linalg.norm(probe.pos[:n, :2] - tr["base_pos"][:n, :2], axis=1)
+    before = (t >= freeze_s - 1.0) & (t < freeze_s)
+    after = t >= freeze_s
+    rms = lambda x: float(math.sqrt(np.mean(x ** 2)))  # noqa: E731
+    assert rms(verr[after]) > 2.0 * rms(verr[before])
+    growth_before = (perr[before][-1] - perr[before][0]) / 1.0
+    growth_after = (perr[after][-1] - perr[after][0]) / (t[after][-1] - t[after][0])
+    assert growth_after > 2.0 * max(growth_before, 0.0)
