@@ -245,7 +245,6 @@ def _as_slice(idx):
     return idx
 
 
-
 class _SensorFaults:
     """Noise, bias and freezing applied to the observation, drawn from the episode's generator."""
 
