@@ -3,8 +3,9 @@
 A name resolves, in this order, to: a controller registered in this process
 with :func:`register`; an entry point in the group ``bench.controllers`` (the
 bench's own controllers are registered this way, exactly as a user's would be);
-a ``package.module:attribute`` reference; or ``exec:program args``, an external program
-(:mod:`bench.controllers.external`). The factory is called with no
+a ``package.module:attribute`` reference; ``exec:program args``, an external program
+(:mod:`bench.controllers.external`); or ``sealed:NAME``, any of the Python ones run in a
+child process (:mod:`bench.controllers.sealed`). The factory is called with no
 arguments and must return an object following :class:`bench.controllers.base.Controller`.
 """
 
@@ -75,6 +76,10 @@ def resolve(name: str) -> Callable[[], object]:
         from bench.controllers.external import from_spec
 
         return from_spec(name[len("exec:"):])
+    if name.startswith("sealed:"):   # a Python controller in a child process, out of the world's reach
+        from bench.controllers.sealed import from_spec as sealed_from_spec
+
+        return sealed_from_spec(name[len("sealed:"):])
     if ":" in name:
         module_name, _, attr = name.partition(":")
         try:

@@ -8,6 +8,8 @@ All manifest names are resolved to ids once, here; consumers index arrays.
 
 from __future__ import annotations
 
+import copy
+
 import mujoco
 import numpy as np
 
@@ -26,11 +28,22 @@ def _ids(model: mujoco.MjModel, kind: mujoco.mjtObj, names) -> np.ndarray:
     return np.array([mujoco.mj_name2id(model, kind, n) for n in names], dtype=np.int64)
 
 
+def _private_copy(manifest: RobotManifest) -> RobotManifest:
+    twin = copy.deepcopy(manifest)
+    for value in vars(twin).values():
+        if isinstance(value, np.ndarray):
+            value.setflags(write=False)   # deepcopy gives writable arrays; the manifest's are read-only
+    return twin
+
+
 class NominalRobot:
     """Robot-only model (floating base, gravity on, no floor) and resolved ids, manifest order."""
 
     def __init__(self, manifest: RobotManifest):
-        self.manifest = manifest
+        # A private copy: a controller that changes its manifest (even with object.__setattr__)
+        # cannot change the one the world, the fall check and the scoring were built from.
+        self.manifest = _private_copy(manifest)
+        manifest = self.manifest
         self.model: mujoco.MjModel = load_robot_spec(manifest).compile()
         m = self.model
         self.mass_kg = float(mujoco.mj_getTotalmass(m))

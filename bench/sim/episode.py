@@ -25,8 +25,11 @@ MuJoCo's warnings are captured while an episode runs (MuJoCo's own message
 text, instead of its default of printing and writing ``MUJOCO_LOG.TXT`` into
 the working folder); a fatal one ends the episode as ``error`` with that text.
 
-The controller gets only an :class:`~bench.controllers.base.Observation`: the
-world model, the scenario, payloads and disturbances stay out of its reach.
+The controller gets only an :class:`~bench.controllers.base.Observation` and a
+command, its own copies refreshed every tick (what it does to them cannot change
+the recorded trace): the world model, the scenario, payloads and disturbances
+stay out of its reach, as far as an in-process call can keep them (see
+``sealed:`` controllers for a process boundary).
 """
 
 from __future__ import annotations
@@ -409,6 +412,9 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                              f"MuJoCo error at t=0.000 s, before the first tick: {_one_line(exc)}", 0.0, 0.0, events)
     obs = Observation.zeros(J, F)
     command = np.zeros(3)
+    # The controller gets its own observation and command, refreshed from these every tick: what it does
+    # to them (np.clip(command, ..., out=command), swapping an array) cannot change what is recorded.
+    ctrl_obs, ctrl_command = Observation.zeros(J, F), np.zeros(3)
     status, reason = "completed", None
     ctrl_ms = A["controller_ms"]
 
@@ -506,9 +512,11 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
             command[:] = cmd_rows[k]
 
             # The controller.
+            ctrl_obs = _refresh_controller_copy(obs, ctrl_obs)
+            ctrl_command[:] = command
             c0 = watchdog.call_start = time.perf_counter()
             try:
-                tau = controller.step(obs, command)
+                tau = controller.step(ctrl_obs, ctrl_command)
                 watchdog.call_start = 0.0
             except _ControllerHung as hung:
                 watchdog.call_start = 0.0
@@ -632,6 +640,23 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     sim_time = float(step * dt) if physics_fault else float(d.time)
     return EpisodeResult(trace, status, reason, sim_time_s=sim_time, wall_time_s=wall,
                          events=events, controller_stats=stats, cpu_time_s=cpu)
+
+
+def _refresh_controller_copy(src: Observation, dst: Observation) -> Observation:
+    """Copy the runner's observation into the controller's (in place); a new one if the controller broke it."""
+    try:
+        dst.t = src.t
+        dst.imu_quat[:] = src.imu_quat
+        dst.imu_gyro[:] = src.imu_gyro
+        dst.imu_accel[:] = src.imu_accel
+        dst.joint_pos[:] = src.joint_pos
+        dst.joint_vel[:] = src.joint_vel
+        dst.foot_contact[:] = src.foot_contact
+        dst.privileged.base_pos[:] = src.privileged.base_pos
+        dst.privileged.base_linvel[:] = src.privileged.base_linvel
+        return dst
+    except Exception:  # noqa: BLE001 - an array replaced by one of another shape, or no longer an array
+        return _refresh_controller_copy(src, Observation.zeros(len(src.joint_pos), len(src.foot_contact)))
 
 
 def _set_payload_mass(m: mujoco.MjModel, p, mass: float) -> None:
