@@ -163,3 +163,188 @@ class SpinsLate(SpinsForever):
     """Spins from tick 200 on: a 1 s scenario (500 ticks) hangs, a 0.2 s one (100 ticks) never gets there."""
 
     AT = 200
+
+
+# --- controllers that try to end, hang or blind the run (tests/test_containment.py) -------------------
+
+
+class ExitsInStep(_PD):
+    """Calls sys.exit(0) at tick ``at``, as a script's controller might."""
+
+    def fault(self, obs, k):
+        import sys
+
+        sys.exit(0)
+
+
+class ExitsInReset(_PD):
+    """Parses options in reset() with argparse, which raises SystemExit(2) on an unknown one."""
+
+    def reset(self, robot, control_dt):
+        import argparse
+        import contextlib
+        import io
+
+        with contextlib.redirect_stderr(io.StringIO()):   # argparse prints its usage first
+            argparse.ArgumentParser(prog="ctrl").parse_args(["--no-such-option"])
+
+
+class ExitsInInit(_PD):
+    """Raises SystemExit(3) while being constructed."""
+
+    def __init__(self, at=None):
+        raise SystemExit(3)
+
+
+class RaisesKeyboardInterrupt(_PD):
+    """Raises KeyboardInterrupt itself (no signal involved)."""
+
+    def fault(self, obs, k):
+        raise KeyboardInterrupt
+
+
+class RaisesGeneratorExit(_PD):
+    """Raises GeneratorExit."""
+
+    def fault(self, obs, k):
+        raise GeneratorExit("deliberate")
+
+
+class RaisesOwnBaseException(_PD):
+    """Raises a BaseException subclass of its own."""
+
+    class Escape(BaseException):
+        pass
+
+    def fault(self, obs, k):
+        raise self.Escape("out of here")
+
+
+class ExitsInStats(_PD):
+    """Behaves, then calls sys.exit(5) from stats()."""
+
+    AT = 10**9
+
+    def stats(self):
+        import sys
+
+        sys.exit(5)
+
+
+class _ExitsWhenConverted:
+    """A torque "array" whose conversion (np.asarray calls __array__) raises SystemExit."""
+
+    def __array__(self, dtype=None, copy=None):
+        raise SystemExit(0)
+
+
+class ReturnsExitingArray(_PD):
+    """Returns an object whose conversion to an array calls sys.exit."""
+
+    def fault(self, obs, k):
+        return _ExitsWhenConverted()
+
+
+class SendsSigint(_PD):
+    """Sends SIGINT to its own process at tick ``at`` (as the user's Ctrl-C would arrive), then goes on."""
+
+    def fault(self, obs, k):
+        import os
+        import signal
+
+        if k == self.at:
+            os.kill(os.getpid(), signal.SIGINT)
+            time.sleep(0.5)   # the signal is delivered here
+        return self.hold(obs)
+
+
+class OsExits(_PD):
+    """Leaves the process with os._exit(0) at tick ``at``: no exception, no cleanup."""
+
+    def fault(self, obs, k):
+        import os
+
+        os._exit(0)
+
+
+class StuckInC(_PD):
+    """Blocks in native code that retries on EINTR (libc ``system`` waiting for ``sleep``): no Python
+    signal handler can run, so the in-process watchdog cannot interrupt it.
+
+    ``pidfile``: where the ``sleep`` process writes its pid, to check that it was killed too.
+    """
+
+    SLEEP_S = 60
+
+    def __init__(self, at=None, pidfile: str = "/dev/null"):
+        super().__init__(at)
+        self.pidfile = pidfile
+
+    def fault(self, obs, k):
+        import ctypes
+
+        ctypes.CDLL(None).system(f"echo $$ > {self.pidfile}; exec sleep {self.SLEEP_S}".encode())
+        return self.hold(obs)
+
+
+#: How long the tampering controllers below stay in the call that tampers (past one watchdog period).
+TAMPER_STAY_S = 0.1
+
+
+class StealsAlarm(_PD):
+    """Installs its own SIGALRM handler at tick ``at`` (and returns), then spins from tick ``at + 5``."""
+
+    def fault(self, obs, k):
+        import signal
+
+        if k == self.at:
+            signal.signal(signal.SIGALRM, lambda *a: None)
+            time.sleep(TAMPER_STAY_S)
+            return self.hold(obs)
+        if k >= self.at + 5:
+            while True:
+                pass
+        return self.hold(obs)
+
+
+class StopsAlarmTimer(_PD):
+    """Stops the real-time interval timer at tick ``at`` (and returns), then spins from tick ``at + 5``."""
+
+    def fault(self, obs, k):
+        import signal
+
+        if k == self.at:
+            signal.setitimer(signal.ITIMER_REAL, 0.0, 0.0)
+            time.sleep(TAMPER_STAY_S)
+            return self.hold(obs)
+        if k >= self.at + 5:
+            while True:
+                pass
+        return self.hold(obs)
+
+
+class BlocksAlarm(_PD):
+    """Blocks SIGALRM at tick ``at`` (and returns), then spins from tick ``at + 5``."""
+
+    def fault(self, obs, k):
+        import signal
+
+        if k == self.at:
+            signal.pthread_sigmask(signal.SIG_BLOCK, [signal.SIGALRM])
+            time.sleep(TAMPER_STAY_S)
+            return self.hold(obs)
+        if k >= self.at + 5:
+            while True:
+                pass
+        return self.hold(obs)
+
+
+class IgnoresAlarmAndSpins(_PD):
+    """Sets SIGALRM to SIG_IGN and spins in the same call: only the executor's deadline kill ends it."""
+
+    def fault(self, obs, k):
+        import signal
+
+        signal.signal(signal.SIGALRM, signal.SIG_IGN)
+        while True:
+            time.sleep(0.05)

@@ -1,4 +1,4 @@
-"""The bench command's contract (contracts.md): files written, keys, exit codes, messages."""
+"""The bench command's documented contract: files written, keys, exit codes, messages."""
 
 from __future__ import annotations
 

@@ -5,6 +5,8 @@ One test, because starting a local cluster takes seconds.
 
 from __future__ import annotations
 
+import os
+import signal
 import textwrap
 
 import pytest
@@ -74,3 +76,27 @@ def test_workers_with_other_versions_are_refused():
     ex.client = StubClient({})
     with pytest.raises(ExecutorError, match="no workers"):
         ex.check_workers()
+
+
+def test_dask_restarts_a_worker_stuck_in_native_code(tmp_path):
+    """Past its limit (+ grace) the episode is a timeout, its worker is restarted, the next episode runs."""
+    import faulty_controllers as fc
+    from bench.execute.dask_cluster import DaskExecutor
+    from bench.scenario import load_scenarios
+    from bench.sim.episode import EpisodeLimits
+
+    (tmp_path / "s.yaml").write_text("name: dask-stuck\nrobot: quad12\nduration: 0.3\n")
+    (sc,) = load_scenarios([str(tmp_path / "s.yaml")])
+    pidfile = tmp_path / "sleep.pid"
+    jobs = [Job(sc, fc.StuckInC(pidfile=str(pidfile)), None, EpisodeLimits(tick_timeout_s=0.3, episode_timeout_s=1.0)),
+            Job(sc, "joint-pd", None, EpisodeLimits(tick_timeout_s=30.0, episode_timeout_s=120.0))]
+    with DaskExecutor("local", workers=1, kill_grace_s=0.5) as ex:
+        got = dict(ex.map(run_job, jobs, on_error=error_outcome))
+        assert ex.deadline_kills == 1
+    assert got[0].result["status"] == "timeout"
+    assert "ran past its wall-clock limit of 1 s" in got[0].result["reason"]
+    assert got[1].result["status"] == "passed", got[1].result["reason"]
+    try:   # the native call's child outlives a restarted Dask worker (only the process executor kills the tree)
+        os.kill(int(pidfile.read_text()), signal.SIGKILL)
+    except (OSError, ValueError):
+        pass

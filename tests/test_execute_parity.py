@@ -97,12 +97,13 @@ def test_process_pool_matches_serial_bit_for_bit(jobs, serial_prints):
 
 
 def test_make_executor_choices():
-    assert make_executor(1).name == "serial"
-    ex = make_executor(2)
-    try:
-        assert ex.name == "process" and ex.workers == 2
-    finally:
-        ex.close()
+    assert make_executor(in_process=True).name == "serial"
+    for n in (1, 2):   # one worker is one isolated child process, not this process
+        ex = make_executor(n)
+        try:
+            assert ex.name == "process" and ex.workers == n
+        finally:
+            ex.close()
 
 
 def test_cli_workers_2_equals_serial(suite_dir, tmp_path, capsys):

@@ -199,7 +199,7 @@ def _check_run(out: Path) -> None:
 
 def test_run_goes_on_after_a_hung_controller_in_process(tmp_path, capsys):
     out = tmp_path / "res"
-    rc = main(["run", str(_suite(tmp_path)), "--controller", "faulty_controllers:SpinsLate", "--workers", "1",
+    rc = main(["run", str(_suite(tmp_path)), "--controller", "faulty_controllers:SpinsLate", "--in-process",
                "--tick-timeout", "0.2", "--out", str(out), "--no-plots", "--no-history"])
     assert rc == 1
     _check_run(out)

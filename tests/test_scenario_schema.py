@@ -78,19 +78,20 @@ def test_terrain_geometry_helpers():
 
 
 def test_register_criterion_extends_the_vocabulary(tmp_path):
-    from bench.scenario import load_file
+    from bench.scenario import load_file, register_criterion, unregister_criterion
+    from bench.scoring.criteria import MetricCriterion
 
     p = tmp_path / "s.yaml"
     p.write_text("name: t\nduration: 5\ncriteria: {my_metric_max: 3}\n")
     with pytest.raises(Exception):
         load_file(p)
-    schema.register_criterion("my_metric_max", doc="a user metric")
+    register_criterion(MetricCriterion("my_metric_max", "my_metric", "a user metric", le=10.0))
     try:
         [s] = load_file(p)
         assert s.criteria == {"my_metric_max": 3.0}
-        assert "my_metric_max" in scenario_json_schema()["$defs"]["criteria"]["properties"]
+        assert scenario_json_schema()["$defs"]["criteria"]["properties"]["my_metric_max"]["maximum"] == 10.0
     finally:
-        del schema.CRITERIA["my_metric_max"]
+        unregister_criterion("my_metric_max")
 
 
 # --------------------------------------------------------------------------- JSON Schema

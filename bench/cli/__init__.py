@@ -2,8 +2,8 @@
 
 Each module of this package that defines ``register(subparsers)`` is a
 subcommand: it adds its parser and sets ``func``; ``main`` never special-cases
-one. ``ORDER`` (an int, default 50) places it in ``bench --help``. Exit codes follow
-contracts.md: 0 success, 1 a scenario failed or errored, 2 invalid input.
+one. ``ORDER`` (an int, default 50) places it in ``bench --help``. Exit codes, as
+documented for every subcommand: 0 success, 1 a scenario failed or errored, 2 invalid input.
 """
 
 from __future__ import annotations

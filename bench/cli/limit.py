@@ -104,7 +104,7 @@ def run(args) -> int:
         return 2
     sc = _pick(scenarios, args.only, args.scenario)
     try:
-        executor = make_executor(args.workers, args.cluster)
+        executor = make_executor(args.workers, args.cluster, in_process=getattr(args, "in_process", False))
     except ExecutorError as exc:
         raise UsageError(str(exc)) from None
     out = Path(args.out)

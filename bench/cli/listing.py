@@ -1,4 +1,4 @@
-"""``bench list [scenarios|controllers|criteria]``: what is available, one per line."""
+"""``bench list [scenarios|controllers|criteria|faults]``: what is available, one per line."""
 
 from __future__ import annotations
 
@@ -6,9 +6,9 @@ from pathlib import Path
 
 
 def register(sub) -> None:
-    p = sub.add_parser("list", help="list bundled scenarios, controllers or criteria",
+    p = sub.add_parser("list", help="list bundled scenarios, controllers, criteria or fault kinds",
                        description="List what is available, one per line with a short description.")
-    p.add_argument("what", nargs="?", choices=["scenarios", "controllers", "criteria"], default="scenarios")
+    p.add_argument("what", nargs="?", choices=["scenarios", "controllers", "criteria", "faults"], default="scenarios")
     p.add_argument("--path", action="append", default=[], metavar="DIR",
                    help="scenario folders to list (default: the bundled scenarios)")
     p.set_defaults(func=run)
@@ -32,10 +32,22 @@ def run(args) -> int:
         for info in available():
             print(f"{info.name:<16} {info.description}")
     elif args.what == "criteria":
-        from bench.scoring.criteria import available
+        from bench.scenario.criteria import all_criteria, criterion_names, load_errors
 
-        for name, crit in sorted(available().items()):
-            print(f"{name:<24} {getattr(crit, 'description', '')}")
+        loaded = all_criteria()
+        for name in criterion_names():
+            crit = loaded.get(name)
+            text = getattr(crit, "description", "") if crit is not None else f"(cannot be loaded: {load_errors.get(name)})"
+            print(f"{name:<24} {text}")
+    elif args.what == "faults":
+        from bench.faults import fault_kinds
+        from bench.faults.registry import load_errors
+
+        for name, kind in fault_kinds().items():
+            doc = (kind.schema.__doc__ or "").strip().splitlines()
+            print(f"{name:<24} {doc[0] if doc else ''}")
+        for name, why in sorted(load_errors.items()):
+            print(f"{name:<24} (cannot be loaded: {why})")
     else:
         from bench.cli.common import load_or_report
 

@@ -69,10 +69,13 @@ def _positive_int(text: str) -> int:
 
 
 def add_execution_options(p) -> None:
-    """``--workers`` and ``--cluster`` (shared with ``bench limit``)."""
+    """``--workers``, ``--cluster`` and ``--in-process`` (shared with ``bench limit``)."""
     p.add_argument("--workers", type=_positive_int, default=None, metavar="N",
-                   help="episodes run at once in worker processes (default: the core count; 1 = serial, "
-                        "in this process)")
+                   help="episodes run at once in worker processes (default: the core count; 1 = one worker "
+                        "process, so that a controller that exits, crashes or hangs takes only its episode with it)")
+    p.add_argument("--in-process", action="store_true",
+                   help="run every episode in this process, one after another (for debuggers and profilers); "
+                        "a controller that crashes the process or hangs in native code then ends the run")
     p.add_argument("--cluster", default=None, metavar="local|tcp://HOST:PORT",
                    help="run on Dask: 'local' starts a local cluster (--workers processes), an address "
                         "connects to a running scheduler")
@@ -120,7 +123,8 @@ def run(args) -> int:
     limits = EpisodeLimits(tick_timeout_s=args.tick_timeout, episode_timeout_s=args.episode_timeout)
     jobs = [Job(sc, args.controller, seed, limits) for sc, seed in zip(episodes, seeds)]
     try:
-        executor = make_executor(getattr(args, "workers", None), getattr(args, "cluster", None))
+        executor = make_executor(getattr(args, "workers", None), getattr(args, "cluster", None),
+                                 in_process=getattr(args, "in_process", False))
     except ExecutorError as exc:
         raise UsageError(str(exc)) from None
     out = Path(args.out)

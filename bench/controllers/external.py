@@ -50,6 +50,13 @@ Failures end the episode with a reason: the program cannot be started, exits
 malformed (the line is quoted), answers for another tick, or does not answer
 within the per-tick timeout (``ExternalControllerTimeout``, a ``TimeoutError``:
 status ``timeout``).
+
+The program runs in a process group (a session) of its own: at the end of the
+episode, on a timeout or on an error, the whole group is ended (``SIGTERM``,
+then ``SIGKILL`` after a grace), so that a wrapper script's children go with
+it. Its stderr is read as it comes by a thread that keeps only the last
+``STDERR_TAIL_BYTES``: a program that floods stderr neither fills memory nor
+the disk, nor stalls on a full pipe.
 """
 
 from __future__ import annotations
@@ -57,8 +64,9 @@ from __future__ import annotations
 import os
 import select
 import shlex
+import signal
 import subprocess
-import tempfile
+import threading
 import time
 import weakref
 from pathlib import Path
@@ -76,6 +84,10 @@ DEFAULT_TICK_TIMEOUT_S = float(os.environ.get("BENCH_EXEC_TICK_TIMEOUT", "2.0"))
 DEFAULT_START_TIMEOUT_S = float(os.environ.get("BENCH_EXEC_START_TIMEOUT", "10.0"))
 #: Wait for the program to exit after BYE before it is killed, s.
 EXIT_GRACE_S = 1.0
+#: Wait after SIGTERM to the program's process group before SIGKILL, s.
+TERM_GRACE_S = 0.5
+#: The last bytes of the program's stderr kept for the reason of a failure.
+STDERR_TAIL_BYTES = 64 * 1024
 _QUOTE_CHARS = 160
 _STDERR_TAIL_LINES = 8
 
@@ -99,13 +111,91 @@ def _num(x: float) -> str:
     return repr(float(x))
 
 
-def _kill(proc: subprocess.Popen | None) -> None:
-    if proc is not None and proc.poll() is None:
+def _signal_group(pgid: int, sig: int) -> bool:
+    """Send ``sig`` to process group ``pgid``; False when the group is gone."""
+    try:
+        os.killpg(pgid, sig)
+    except ProcessLookupError:
+        return False
+    except OSError:
+        return False
+    return True
+
+
+def end_process_group(proc: subprocess.Popen, grace_s: float = TERM_GRACE_S) -> None:
+    """End ``proc``, started with ``start_new_session=True``, and every process of its group.
+
+    SIGTERM to the group, up to ``grace_s`` for the leader to go, then SIGKILL to the group. The
+    group is signalled even when the leader has already exited: a wrapper's children may still run.
+    """
+    pgid = proc.pid   # a session leader's group id is its pid
+    if _signal_group(pgid, signal.SIGTERM):
+        try:
+            proc.wait(timeout=grace_s)
+        except (subprocess.TimeoutExpired, OSError):
+            pass
+        _signal_group(pgid, signal.SIGKILL)
+    _kill(proc, group=False)
+
+
+def _kill(proc: subprocess.Popen | None, group: bool | None = None) -> None:
+    """Kill ``proc`` (its whole group when it was started in a session of its own) and reap it."""
+    if proc is None:
+        return
+    if group is None:
+        group = getattr(proc, "_bench_own_group", False)
+    if group:
+        end_process_group(proc)
+        return
+    if proc.poll() is None:
         try:
             proc.kill()
-            proc.wait(timeout=5)
-        except (OSError, subprocess.SubprocessError):
+        except OSError:
             pass
+    try:
+        proc.wait(timeout=5)
+    except (OSError, subprocess.SubprocessError):
+        pass
+
+
+class StderrTail:
+    """Reads a pipe to its end on a thread of its own, keeping only the last ``limit`` bytes."""
+
+    def __init__(self, fd: int, limit: int = STDERR_TAIL_BYTES) -> None:
+        self.fd = fd
+        self.limit = int(limit)
+        self.buf = bytearray()
+        self.total = 0          # bytes read in all
+        self._lock = threading.Lock()
+        self._thread = threading.Thread(target=self._pump, name="bench-exec-stderr", daemon=True)
+        self._thread.start()
+
+    def _pump(self) -> None:
+        try:
+            while True:
+                chunk = os.read(self.fd, 65536)
+                if not chunk:
+                    break
+                with self._lock:
+                    self.total += len(chunk)
+                    self.buf += chunk
+                    if len(self.buf) > 2 * self.limit:   # trim in batches, not on every read
+                        del self.buf[:len(self.buf) - self.limit]
+        except OSError:
+            pass
+        finally:
+            try:
+                os.close(self.fd)
+            except OSError:
+                pass
+
+    def join(self, timeout_s: float) -> None:
+        self._thread.join(timeout_s)
+
+    def tail(self) -> bytes:
+        """The last ``limit`` bytes read so far."""
+        with self._lock:
+            return bytes(self.buf[-self.limit:])
 
 
 class _LineReader:
@@ -168,23 +258,27 @@ class ExternalController:
     # -- process ---------------------------------------------------------------------
     def _start(self) -> None:
         self.close()
-        self._stderr = tempfile.TemporaryFile()
+        err_read, err_write = os.pipe()
         try:
+            # A session of its own: the whole group (a wrapper script and what it starts) can be ended.
             self._proc = subprocess.Popen(self.argv, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
-                                          stderr=self._stderr, cwd=self.cwd, env=self.env, bufsize=0)
+                                          stderr=err_write, cwd=self.cwd, env=self.env, bufsize=0,
+                                          start_new_session=True)
         except OSError as exc:
+            os.close(err_read)
             raise ExternalControllerError(f"cannot start {shlex.join(self.argv)!r}: {exc.strerror or exc}") from None
+        finally:
+            os.close(err_write)
+        self._proc._bench_own_group = True
+        self._stderr = StderrTail(err_read)
         self._reader = _LineReader(self._proc.stdout.fileno())
         self._finalizer = weakref.finalize(self, _kill, self._proc)
 
     def _stderr_tail(self) -> str:
         if self._stderr is None:
             return ""
-        try:
-            self._stderr.seek(0)
-            lines = self._stderr.read().decode("utf-8", "replace").splitlines()[-_STDERR_TAIL_LINES:]
-        except OSError:
-            return ""
+        lines = self._stderr.tail().decode("utf-8", "replace").splitlines()[-_STDERR_TAIL_LINES:]
+        lines = [line if len(line) <= _QUOTE_CHARS else line[:_QUOTE_CHARS] + "..." for line in lines]
         return ("; its stderr ends: " + " | ".join(lines)) if lines else ""
 
     def _died(self, when: str) -> ExternalControllerError:
@@ -194,6 +288,8 @@ class ExternalController:
                 code = self._proc.wait(timeout=1.0)
             except subprocess.TimeoutExpired:
                 pass
+        if code is not None and self._stderr is not None:
+            self._stderr.join(0.5)   # its last lines, unless a child of it still holds the pipe open
         how = f"exited with code {code}" if code is not None else "closed its stdout"
         return ExternalControllerError(f"controller program {how} {when}{self._stderr_tail()}")
 
@@ -208,6 +304,8 @@ class ExternalController:
             try:
                 line = self._reader.readline(timeout_s)
             except TimeoutError:
+                if self._proc is not None and self._proc.poll() is not None:
+                    raise self._died(when) from None   # it exited (e.g. busy flooding stderr) without closing stdout
                 raise ExternalControllerTimeout(
                     f"controller program sent no {what} within {timeout_s:g} s {when}{self._stderr_tail()}") from None
             if line is None:
@@ -220,7 +318,7 @@ class ExternalController:
         self.close()
 
     def close(self) -> None:
-        """End the program (BYE, close stdin, wait briefly, then kill)."""
+        """End the program (close stdin, wait briefly, then end its whole process group)."""
         proc, self._proc = self._proc, None
         if proc is not None:
             if proc.poll() is None:
@@ -231,7 +329,8 @@ class ExternalController:
                 try:
                     proc.wait(timeout=EXIT_GRACE_S)
                 except subprocess.TimeoutExpired:
-                    _kill(proc)
+                    pass
+            _kill(proc)   # the whole group, even after the leader left: what it started goes too
             for f in (proc.stdout, proc.stdin):
                 try:
                     f.close()
@@ -241,7 +340,7 @@ class ExternalController:
             self._finalizer.detach()
             self._finalizer = None
         if self._stderr is not None:
-            self._stderr.close()
+            self._stderr.join(1.0)
             self._stderr = None
 
     # -- Controller protocol ---------------------------------------------------------

@@ -13,6 +13,12 @@ reports the death as ``KilledWorker`` (locally it is told to give up at the
 first death, ``allowed-failures: 0``); the episode is then tried once more,
 and a second death makes it an ``error`` with the reason, while the rest of
 the run goes on.
+
+An episode still running ``kill_grace_s`` past its wall-clock limit (a
+controller stuck in native code: the in-process watchdog does not run on a Dask
+worker's thread) gets its worker restarted through its nanny and becomes a
+``timeout``; the clock starts when the episode is submitted, which is when it
+starts, since no more are in flight than the cluster has threads.
 """
 
 from __future__ import annotations
@@ -50,10 +56,16 @@ class DaskExecutor:
 
     name = "dask"
 
-    def __init__(self, cluster: str = "local", workers: int | None = None):
+    def __init__(self, cluster: str = "local", workers: int | None = None, *, kill_grace_s: float | None = None,
+                 deadline_of=None):
+        from bench.execute.process import KILL_GRACE_S, job_wall_limit
+
         distributed = _import_distributed()
         import dask
 
+        self.kill_grace_s = KILL_GRACE_S if kill_grace_s is None else float(kill_grace_s)
+        self.deadline_of = deadline_of or job_wall_limit
+        self.deadline_kills = 0
         self.address = cluster
         self.cluster = None
         self._keys = itertools.count()
@@ -123,23 +135,29 @@ class DaskExecutor:
         tries = [0] * len(jobs)
         ac = as_completed(raise_errors=False, loop=self.client.loop)
         index: dict[str, int] = {}
+        kill_at: dict[str, tuple[float, float, object]] = {}   # key -> (time.monotonic() deadline, limit s, future)
+        abandoned: set[str] = set()                    # keys given up as timeouts, still in ``ac``
 
         def submit_more() -> None:
             limit = self.threads()
-            while todo and ac.count() < limit:
+            while todo and ac.count() - len(abandoned) < limit:
                 i = todo.popleft()
                 tries[i] += 1
                 fut = self.client.submit(fn, jobs[i], key=f"bench-episode-{next(self._keys)}", pure=False)
                 index[fut.key] = i
+                wall = self.deadline_of(jobs[i])
+                if wall is not None:
+                    kill_at[fut.key] = (time.monotonic() + wall + self.kill_grace_s, wall, fut)
                 ac.add(fut)
 
         submit_more()
         try:
-            while ac.count() or todo:
-                if not ac.count():
+            while ac.count() - len(abandoned) or todo:
+                if not ac.count() - len(abandoned):
                     submit_more()
                     continue
-                if not self._wait_ready(ac):
+                waited = self._wait_ready(ac, kill_at, abandoned)
+                if waited is None:
                     reason = (f"no Dask worker was left on {self.address} for {NO_WORKER_TIMEOUT_S:g} s "
                               f"(the last one was lost); the episode did not finish")
                     if on_error is None:
@@ -149,7 +167,24 @@ class DaskExecutor:
                     for i in [index.pop(k) for k in list(index)] + list(todo):
                         yield i, on_error(jobs[i], reason)
                     return
+                if waited != "ready":   # an episode past its deadline; its worker was restarted
+                    key, wall = waited
+                    i = index.pop(key)
+                    reason = (f"the episode ran past its wall-clock limit of {wall:g} s by more than "
+                              f"{self.kill_grace_s:g} s without returning, so its Dask worker was restarted "
+                              f"(a controller stuck in native code)")
+                    if on_error is None:
+                        raise TimeoutError(reason)
+                    submit_more()
+                    yield i, on_error(jobs[i], reason, status="timeout")
+                    continue
                 fut = next(ac)
+                kill_at.pop(fut.key, None)
+                if fut.key in abandoned:
+                    abandoned.discard(fut.key)
+                    fut.release()
+                    submit_more()
+                    continue
                 i = index.pop(fut.key)
                 try:
                     out = fut.result()
@@ -176,11 +211,35 @@ class DaskExecutor:
             for fut in list(ac.futures):
                 fut.cancel()
 
-    def _wait_ready(self, ac) -> bool:
-        """Wait until a result is ready; False when no worker has been connected for NO_WORKER_TIMEOUT_S."""
+    def _overdue(self, kill_at: dict, abandoned: set) -> tuple[str, float] | None:
+        """The key of an episode past its deadline, after restarting the worker that runs it; else None."""
+        now = time.monotonic()
+        for key, (deadline, wall, fut) in list(kill_at.items()):
+            if now < deadline:
+                continue
+            del kill_at[key]
+            abandoned.add(key)
+            self.deadline_kills += 1
+            try:
+                holders = [w for w, keys in self.client.processing().items() if key in keys]
+                self.client.cancel([fut], force=True)
+                if holders:
+                    self.client.restart_workers(holders, raise_for_error=False)
+            except Exception:  # noqa: BLE001 - the timeout stands whether or not the restart worked
+                pass
+            return key, wall
+        return None
+
+    def _wait_ready(self, ac, kill_at: dict, abandoned: set):
+        """Wait until a result is ready: ``"ready"``; or an episode is past its deadline (its worker is then
+        restarted): ``(key, limit_s)``; or no worker has been connected for NO_WORKER_TIMEOUT_S: None."""
         alone_since = None
         next_look = time.monotonic() + WORKER_POLL_S
         while not ac.has_ready():
+            if kill_at:
+                overdue = self._overdue(kill_at, abandoned)
+                if overdue is not None:
+                    return overdue
             time.sleep(0.01)
             now = time.monotonic()
             if now < next_look:
@@ -195,8 +254,8 @@ class DaskExecutor:
             elif alone_since is None:
                 alone_since = now
             elif now - alone_since >= NO_WORKER_TIMEOUT_S:
-                return False
-        return True
+                return None
+        return "ready"
 
     def close(self) -> None:
         client, self.client = getattr(self, "client", None), None

@@ -7,13 +7,18 @@ of (scenario, controller, seed), and no executor passes anything else along.
 
 Each back end is a short module of its own with the same shape:
 
-- :class:`SerialExecutor` (here): one job after another in this process;
-- :class:`bench.execute.process.ProcessExecutor`: a local process pool;
-- :class:`bench.execute.dask_cluster.DaskExecutor`: a Dask distributed cluster.
+- :class:`bench.execute.process.ProcessExecutor`: local worker processes, one job each at a time
+  (``--workers N``, and ``--workers 1``: a single isolated child, the default for one worker);
+- :class:`bench.execute.dask_cluster.DaskExecutor`: a Dask distributed cluster;
+- :class:`SerialExecutor` (here): one job after another in this process (``--in-process``, for
+  debugging with breakpoints and profilers). Nothing stands between the run and the controller
+  there: ``os._exit`` or a crash in native code ends the run, and a call stuck in native code is
+  not interrupted.
 
 ``on_error(job, reason) -> outcome`` turns a job that produced no result
 (its worker process died, it could not be sent to a worker, the function
-raised) into an outcome of its own, so that the rest of the run goes on.
+raised) into an outcome of its own, so that the rest of the run goes on; a job
+killed past its wall-clock limit is ``on_error(job, reason, status="timeout")``.
 Without it, the failure is raised.
 """
 
@@ -52,7 +57,6 @@ def code_fingerprint() -> dict[str, str]:
     A remote worker whose fingerprint differs from this machine's would give
     different results for the same scenario.
     """
-    import hashlib
     import platform
     from pathlib import Path
 
@@ -60,13 +64,11 @@ def code_fingerprint() -> dict[str, str]:
     import numpy
 
     import bench
+    from bench.fileio import sha256_files
 
-    h = hashlib.sha256()
     root = Path(bench.__file__).resolve().parent
-    for f in sorted(root.rglob("*.py")):
-        h.update(f.relative_to(root).as_posix().encode())
-        h.update(f.read_bytes())
-    return {"bench": f"{bench.__version__} (source {h.hexdigest()[:12]})", "mujoco": mujoco.__version__,
+    source = sha256_files(root, root.rglob("*.py"))
+    return {"bench": f"{bench.__version__} (source {source[:12]})", "mujoco": mujoco.__version__,
             "numpy": numpy.__version__, "python": platform.python_version()}
 
 
@@ -76,7 +78,7 @@ def describe_exception(exc: BaseException) -> str:
 
 
 class SerialExecutor:
-    """Runs jobs one after another in this process (no isolation: a crash ends the run)."""
+    """Runs jobs one after another in this process (no isolation: a crash ends the run; the user's Ctrl-C too)."""
 
     name = "serial"
     workers = 1
@@ -85,7 +87,9 @@ class SerialExecutor:
         for i, job in enumerate(jobs):
             try:
                 out = fn(job)
-            except Exception as exc:  # noqa: BLE001 - one job's fault is that job's outcome
+            except KeyboardInterrupt:
+                raise
+            except BaseException as exc:  # noqa: BLE001 - one job's fault is that job's outcome, SystemExit too
                 if on_error is None:
                     raise
                 out = on_error(job, f"the episode raised {describe_exception(exc)}")
@@ -101,23 +105,30 @@ class SerialExecutor:
         self.close()
 
 
-def make_executor(workers: int | None = None, cluster: str | None = None) -> Executor:
-    """The executor for ``--workers N`` / ``--cluster local|tcp://HOST:PORT``.
+def make_executor(workers: int | None = None, cluster: str | None = None, *, in_process: bool = False) -> Executor:
+    """The executor for ``--workers N`` / ``--cluster local|tcp://HOST:PORT`` / ``--in-process``.
 
-    ``workers`` defaults to the core count; 1 means serial (in this process).
+    ``workers`` defaults to the core count; 1 means one worker process (a controller that
+    exits, crashes or hangs in native code takes only its episode with it). ``in_process``
+    runs every episode in this process, one after another, for debugging.
     With ``cluster``, ``workers`` is the number of local Dask workers
     (``local``) and is ignored for an existing scheduler's address.
     Raises :class:`ExecutorError` with a message for the user.
     """
     if workers is not None and int(workers) < 1:
         raise ExecutorError(f"--workers must be at least 1, got {workers}")
+    if in_process:
+        if cluster:
+            raise ExecutorError("--in-process runs episodes in this process; it cannot be combined with --cluster")
+        if workers is not None and int(workers) > 1:
+            raise ExecutorError(f"--in-process runs one episode at a time; it cannot be combined with "
+                                f"--workers {workers}")
+        return SerialExecutor()
     if cluster:
         from bench.execute.dask_cluster import DaskExecutor
 
         return DaskExecutor(cluster, workers=workers)
     n = default_workers() if workers is None else int(workers)
-    if n == 1:
-        return SerialExecutor()
     from bench.execute.process import ProcessExecutor
 
     return ProcessExecutor(n)

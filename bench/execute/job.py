@@ -22,6 +22,7 @@ from bench.report.results import trace_digest
 from bench.robot.model import NominalRobot
 from bench.scoring.verdict import score
 from bench.sim.episode import EpisodeLimits, run_episode
+from bench.sim.interrupts import UserInterrupts, raised_reason
 from bench.sim.trace import Trace
 from bench.world.build import build_world, manifest_for
 
@@ -65,6 +66,14 @@ def _base_result(scenario, controller_name: str, seed: int) -> dict:
 
 
 def run_job(job: Job) -> Outcome:
+    # Controller code runs while the controller is made (its module imported, its constructor called) and
+    # during the episode: whatever it raises, SystemExit and KeyboardInterrupt included, is this episode's
+    # error; only the user's Ctrl-C goes through.
+    with UserInterrupts() as user:
+        return _run_job(job, user)
+
+
+def _run_job(job: Job, user: UserInterrupts) -> Outcome:
     sc = job.scenario
     seed = int(sc.seed if job.seed is None else job.seed)
     name = job.controller if isinstance(job.controller, str) else getattr(job.controller, "name", "custom")
@@ -73,8 +82,11 @@ def run_job(job: Job) -> Outcome:
     try:
         cname, controller = registry.make(job.controller)
         result["controller"] = str(cname)
-    except Exception as exc:  # noqa: BLE001
-        result["reason"] = f"controller {name!r} could not be made: {exc}"
+    except BaseException as exc:  # noqa: BLE001 - SystemExit from a controller's module or constructor too
+        if user.by_user(exc):
+            raise
+        why = str(exc) if isinstance(exc, Exception) else raised_reason(exc, "while it was made")
+        result["reason"] = f"controller {name!r} could not be made: {why}"
         return Outcome(result, None)
     try:
         manifest = manifest_for(sc)
@@ -86,7 +98,9 @@ def run_job(job: Job) -> Outcome:
         return Outcome(result, None)
     try:
         ep = run_episode(world, sc, controller, robot, seed=seed, limits=job.limits)
-    except Exception as exc:  # noqa: BLE001 - a bench bug must still not unwind the run
+    except BaseException as exc:  # noqa: BLE001 - a bench bug must still not unwind the run
+        if user.by_user(exc):
+            raise
         result["reason"] = f"episode failed: {type(exc).__name__}: {exc}"
         result["traceback"] = traceback.format_exc(limit=6)
         result["wall_time_s"] = time.perf_counter() - t0
@@ -111,5 +125,6 @@ def run_job(job: Job) -> Outcome:
         # identical for the same scenario, seed and controller, on any run and in any process
         "trace_sha256": trace_digest(ep.trace.arrays),
         "mujoco_warnings": list(getattr(ep, "mujoco_warnings", []) or []),
+        "watchdog_restored": list(getattr(ep, "watchdog_restored", []) or []),
     })
     return Outcome(result, ep.trace, ep.events)

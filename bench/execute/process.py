@@ -1,67 +1,91 @@
-"""The local process executor: ``--workers N`` on one machine.
+"""The local process executor: ``--workers N`` on one machine (and ``--workers 1``: one isolated child).
 
-A ``concurrent.futures.ProcessPoolExecutor`` started with the ``forkserver``
-method where the platform has it (else ``spawn``): never plain ``fork``, which
-would copy a parent that may hold threads (a Dask client, matplotlib, MuJoCo
+Each worker is a process of its own, started with the ``forkserver`` method
+where the platform has it (else ``spawn``): never plain ``fork``, which would
+copy a parent that may hold threads (a Dask client, matplotlib, MuJoCo
 callbacks) into every worker. The fork server imports the bench once, so a
-worker starts in tens of milliseconds. The pool lives until ``close()`` and is
+worker starts in tens of milliseconds. Workers live until ``close()`` and are
 reused by every ``map`` (``bench limit`` runs one batch per bisection round).
 
-A worker that dies (a segmentation fault in a native controller, ``os._exit``,
-the kernel's out-of-memory killer) breaks the whole pool: every job not yet
-finished gets ``BrokenProcessPool``, the guilty one and its innocent
-neighbours alike. Each worker therefore reports, through a pipe, which job it
-has just started. After a break, the jobs that had not started go to a fresh
-pool; those that had started (at most one per worker) are each run again alone
-in a process of their own, whose exit code tells whether that job is the one
-that kills its process. The guilty job becomes ``on_error(job, reason)`` with
-the signal or exit code in the reason; the others finish normally.
+The parent talks to each worker over a pipe of its own and hands it one job at a
+time, so it always knows which job a worker holds and since when:
+
+- a worker that dies (a segmentation fault in a native controller,
+  ``os._exit``, the kernel's out-of-memory killer) takes only its own job with
+  it: that job becomes ``on_error(job, reason)`` with the signal or exit code,
+  a fresh worker takes its place and the rest of the run goes on;
+- a job still running ``grace`` seconds past its wall-clock limit (the
+  episode's ``limits.episode_timeout_s``; the in-process watchdog should have
+  ended it by then, unless the controller is stuck in native code or switched
+  the watchdog off) gets its worker killed, together with the process groups
+  that worker started (external controller programs), and becomes
+  ``on_error(job, reason, status="timeout")``; a fresh worker takes its place.
+
+Workers ignore ``SIGINT``: a Ctrl-C reaches the whole process group, and the
+parent decides what stops (it kills its workers and lets the interrupt through).
 """
 
 from __future__ import annotations
 
-import concurrent.futures as cf
-import itertools
+import collections
 import multiprocessing as mp
 import multiprocessing.connection as mpc
+import os
 import signal
-from concurrent.futures.process import BrokenProcessPool
+import time
+from multiprocessing.reduction import ForkingPickler
 from typing import Callable, Iterator
 
 from bench.execute.executors import ExecutorError, OnError, describe_exception
 
 #: Modules the fork server imports once, so that workers start with them loaded.
 PRELOAD = ("bench.execute.job",)
-#: A job lost in this many pool breaks without having been seen to start is run alone anyway.
-MAX_LOST_UNSTARTED = 2
-
-_started_queue = None  # set in each worker by _init_worker
-
-
-def _init_worker(queue) -> None:
-    global _started_queue
-    _started_queue = queue
-    # Ctrl-C goes to the whole process group; the parent decides what stops, workers must not
-    # print a traceback each.
-    signal.signal(signal.SIGINT, signal.SIG_IGN)
+#: Seconds past a job's wall-clock limit before the parent kills its worker (covers building the world before
+#: the episode's clock starts, and scoring and sending the result after it stops).
+KILL_GRACE_S = 5.0
+#: Wait for a worker to start and unpack its job (the fork server may be starting too), s, before the job's own
+#: limit applies.
+START_GRACE_S = 120.0
+#: Wait for a killed or retired worker to go, s.
+JOIN_TIMEOUT_S = 5.0
 
 
-def _run_tagged(fn: Callable, token: int, index: int, job):
-    # SimpleQueue writes straight into the pipe (no feeder thread), so the message is out
-    # before the job can crash the process.
-    _started_queue.put((token, index))
-    return fn(job)
-
-
-def _run_alone(conn, fn: Callable, job) -> None:
-    signal.signal(signal.SIGINT, signal.SIG_IGN)
+def job_wall_limit(job) -> float | None:
+    """A job's wall-clock limit, s: its ``limits.episode_timeout_s`` when positive, else None (no limit)."""
+    limit = getattr(getattr(job, "limits", None), "episode_timeout_s", None)
     try:
-        out = fn(job)
-    except Exception as exc:  # noqa: BLE001
-        conn.send(("raised", describe_exception(exc)))
-    else:
-        conn.send(("ok", out))
-    conn.close()
+        limit = float(limit)
+    except (TypeError, ValueError):
+        return None
+    return limit if limit > 0 else None
+
+
+def _worker_main(conn) -> None:
+    """A worker's loop: receive ``(fn, job)``, answer ``("ok", outcome)`` or ``("raised", text)``; None ends it."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    while True:
+        try:
+            msg = conn.recv()
+        except (EOFError, OSError):
+            return
+        except BaseException as exc:  # noqa: BLE001 - unpickling the job ran code that raised
+            conn.send(("raised", f"the job could not be received: {describe_exception(exc)}"))
+            continue
+        if msg is None:
+            return
+        fn, job = msg
+        conn.send(("started",))   # the job's wall-clock limit runs from here, not from a slow worker start
+        try:
+            reply = ("ok", fn(job))
+        except BaseException as exc:  # noqa: BLE001 - SystemExit and the like end the job, not the worker
+            reply = ("raised", f"the episode raised {describe_exception(exc)}")
+        del msg, job
+        try:
+            conn.send(reply)
+        except (EOFError, OSError):
+            return
+        except BaseException as exc:  # noqa: BLE001 - the outcome cannot be pickled
+            conn.send(("raised", f"the episode's outcome could not be sent back: {describe_exception(exc)}"))
 
 
 def death_reason(exitcode: int | None) -> str:
@@ -77,13 +101,110 @@ def death_reason(exitcode: int | None) -> str:
     return f"the worker process running this episode exited with code {exitcode} before returning a result"
 
 
+def _proc_table() -> dict[int, tuple[int, int]]:
+    """pid -> (parent pid, process group) of every process visible in /proc (empty where there is none)."""
+    table = {}
+    try:
+        names = os.listdir("/proc")
+    except OSError:
+        return table
+    for name in names:
+        if not name.isdigit():
+            continue
+        try:
+            with open(f"/proc/{name}/stat", "rb") as f:
+                stat = f.read()
+        except OSError:
+            continue
+        fields = stat[stat.rfind(b")") + 2:].split()   # the command name may hold spaces and parentheses
+        try:
+            table[int(name)] = (int(fields[1]), int(fields[2]))
+        except (IndexError, ValueError):
+            continue
+    return table
+
+
+def kill_tree(pid: int) -> None:
+    """SIGKILL process ``pid``, every process it started, and the process groups those lead.
+
+    An external controller program runs in a process group of its own (so that its whole group
+    can be ended); when its worker is killed, it would otherwise be left running. The worker is
+    stopped first so that it starts nothing new while the tree is read (Linux ``/proc``; elsewhere
+    only ``pid`` itself is killed).
+    """
+    try:
+        os.kill(pid, signal.SIGSTOP)
+    except OSError:
+        pass
+    table = _proc_table()
+    children = collections.defaultdict(list)
+    for p, (ppid, _) in table.items():
+        children[ppid].append(p)
+    tree, todo = [], [pid]
+    while todo:
+        p = todo.pop()
+        for c in children.get(p, ()):
+            tree.append(c)
+            todo.append(c)
+    own_group = os.getpgrp()
+    groups = {table[p][1] for p in tree if table[p][1] == p and p != own_group}
+    for p in [pid, *tree]:
+        try:
+            os.kill(p, signal.SIGKILL)
+        except OSError:
+            pass
+    for g in groups:
+        try:
+            os.killpg(g, signal.SIGKILL)
+        except OSError:
+            pass
+
+
+class _Worker:
+    """One worker process, its end of the pipe, and the job it holds."""
+
+    def __init__(self, ctx) -> None:
+        self.conn, child = ctx.Pipe(duplex=True)
+        self.process = ctx.Process(target=_worker_main, args=(child,), daemon=True, name="bench-worker")
+        self.process.start()
+        child.close()
+        self.index: int | None = None    # job held (index into the current map's jobs)
+        self.kill_at = float("inf")      # time.monotonic() past which the worker is killed
+        self.limit_s: float | None = None
+        self.started = False             # the worker said it has the job and runs it
+        self.tasks = 0
+
+    def kill(self) -> None:
+        if self.process.is_alive():
+            kill_tree(self.process.pid)
+        self.process.join(JOIN_TIMEOUT_S)
+        self.conn.close()
+
+    def retire(self) -> None:
+        try:
+            self.conn.send(None)
+        except (OSError, ValueError):
+            pass
+        self.process.join(JOIN_TIMEOUT_S)
+        if self.process.is_alive():
+            self.kill()
+        else:
+            self.conn.close()
+
+
 class ProcessExecutor:
-    """Runs jobs in a pool of ``workers`` local processes."""
+    """Runs jobs in ``workers`` local processes, one job per process at a time (see the module docstring).
+
+    ``kill_grace_s``: seconds past a job's wall-clock limit before its worker is killed.
+    ``deadline_of(job)``: a job's wall-clock limit in seconds, or None for none (default
+    :func:`job_wall_limit`).
+    """
 
     name = "process"
 
     def __init__(self, workers: int, *, method: str | None = None, max_tasks_per_child: int | None = None,
-                 preload: tuple[str, ...] = PRELOAD):
+                 preload: tuple[str, ...] = PRELOAD, kill_grace_s: float = KILL_GRACE_S,
+                 deadline_of: Callable[[object], float | None] = job_wall_limit):
         self.workers = max(1, int(workers))
         methods = mp.get_all_start_methods()
         self.method = method or ("forkserver" if "forkserver" in methods else "spawn")
@@ -93,160 +214,154 @@ class ProcessExecutor:
         if self.method == "forkserver" and preload:
             self.ctx.set_forkserver_preload(list(preload))
         self.max_tasks_per_child = max_tasks_per_child
-        self._pool: cf.ProcessPoolExecutor | None = None
-        self._queue = None
-        self._tokens = itertools.count()
+        self.kill_grace_s = float(kill_grace_s)
+        self.deadline_of = deadline_of
+        self._idle: list[_Worker] = []
+        self._busy: list[_Worker] = []
         self._active = 0      # map() generators not yet finished
-        self.pool_breaks = 0  # for tests and benchmarks: how many times a worker died
+        self.pool_breaks = 0  # for tests and benchmarks: workers that died or were killed
+        self.deadline_kills = 0
 
-    # ------------------------------------------------------------------ pool
+    # ------------------------------------------------------------------ workers
 
-    def _ensure_pool(self) -> cf.ProcessPoolExecutor:
-        if self._pool is None:
-            self._queue = self.ctx.SimpleQueue()
-            kw = {}
-            if self.max_tasks_per_child is not None:
-                kw["max_tasks_per_child"] = self.max_tasks_per_child
-            try:
-                self._pool = cf.ProcessPoolExecutor(self.workers, mp_context=self.ctx, initializer=_init_worker,
-                                                    initargs=(self._queue,), **kw)
-            except (OSError, ValueError) as exc:
-                raise ExecutorError(f"cannot start {self.workers} worker processes: {exc}") from None
-        return self._pool
+    def _take_worker(self) -> _Worker:
+        while self._idle:
+            w = self._idle.pop()
+            if w.process.is_alive():
+                return w
+            w.conn.close()
+        try:
+            return _Worker(self.ctx)
+        except (OSError, ValueError) as exc:
+            raise ExecutorError(f"cannot start a worker process: {exc}") from None
 
-    def _discard_pool(self) -> None:
-        pool, self._pool = self._pool, None
-        if pool is not None:
-            pool.shutdown(wait=True, cancel_futures=True)
-        if self._queue is not None:
-            self._queue.close()
-            self._queue = None
+    def _release(self, w: _Worker) -> None:
+        w.index, w.kill_at, w.limit_s = None, float("inf"), None
+        self._busy.remove(w)
+        w.tasks += 1
+        if self.max_tasks_per_child is not None and w.tasks >= self.max_tasks_per_child:
+            w.retire()
+        else:
+            self._idle.append(w)
 
-    def _drain(self, started: set) -> None:
-        q = self._queue
-        while q is not None and not q.empty():
-            started.add(q.get())
+    def _drop(self, w: _Worker, kill: bool) -> None:
+        self._busy.remove(w)
+        self.pool_breaks += 1
+        if kill:
+            w.kill()
+        else:
+            w.process.join(JOIN_TIMEOUT_S)
+            w.conn.close()
 
     # ------------------------------------------------------------------ map
 
     def map(self, fn: Callable, jobs: list, on_error: OnError | None = None) -> Iterator[tuple[int, object]]:
         self._active += 1
+        mine: list[_Worker] = []   # this map's busy workers (another map may run on the same executor)
         try:
-            yield from self._map(fn, jobs, on_error)
+            yield from self._map(fn, jobs, on_error, mine)
         except BaseException:
             # the consumer stopped early (GeneratorExit), or Ctrl-C / an error arrived while waiting:
             # the running episodes are not wanted
-            self._terminate_pool()
+            for w in mine:
+                self._busy.remove(w)
+                w.kill()
             raise
         finally:
             self._active -= 1
 
-    def _map(self, fn: Callable, jobs: list, on_error: OnError | None) -> Iterator[tuple[int, object]]:
-        token = next(self._tokens)
-        todo = list(range(len(jobs)))
-        lost_unstarted: dict[int, int] = {}
-        while todo:
-            pool = self._ensure_pool()
-            futures: dict[cf.Future, int] = {}
-            lost: list[int] = []
-            for n, i in enumerate(todo):
+    def run_one(self, fn: Callable, job, on_error: OnError | None = None):
+        """``fn(job)`` in a worker process: its outcome, or ``on_error``'s for a death, a timeout or a raise."""
+        for _, out in self.map(fn, [job], on_error):
+            return out
+        raise RuntimeError("no outcome")  # pragma: no cover - map yields once per job
+
+    def _map(self, fn: Callable, jobs: list, on_error: OnError | None,
+             mine: list[_Worker]) -> Iterator[tuple[int, object]]:
+        todo = collections.deque(range(len(jobs)))
+        resent: set[int] = set()   # jobs whose worker died before it said it had started them
+
+        def fail(i: int, reason: str, status: str = "error"):
+            if on_error is None:
+                raise (TimeoutError if status == "timeout" else RuntimeError)(reason)
+            return on_error(jobs[i], reason, status=status) if status != "error" else on_error(jobs[i], reason)
+
+        while todo or mine:
+            while todo and len(mine) < self.workers:
+                i = todo.popleft()
                 try:
-                    futures[pool.submit(_run_tagged, fn, token, i, jobs[i])] = i
-                except BrokenProcessPool:
-                    lost.extend(todo[n:])
-                    break
-            todo = []
-            started: set = set()
-            pending = set(futures)
-            try:
-                while pending:
-                    done, pending = cf.wait(pending, timeout=0.5, return_when=cf.FIRST_COMPLETED)
-                    self._drain(started)
-                    for fut in done:
-                        i = futures.pop(fut)   # drop the finished future: it holds the outcome (the trace)
-                        try:
-                            out = fut.result()
-                        except BrokenProcessPool:
-                            lost.append(i)
-                            continue
-                        except Exception as exc:  # noqa: BLE001 - e.g. the job could not be pickled
-                            if on_error is None:
-                                raise
-                            out = on_error(jobs[i], f"the episode could not be run in a worker process: "
-                                                    f"{describe_exception(exc)}")
-                        yield i, out
-            finally:
-                for fut in pending:  # the consumer stopped early
-                    fut.cancel()
-            if not lost:
+                    data = ForkingPickler.dumps((fn, jobs[i]))
+                except Exception as exc:  # noqa: BLE001 - e.g. a lambda or an open file in the job
+                    yield i, fail(i, f"the episode could not be run in a worker process: {describe_exception(exc)}")
+                    continue
+                w = self._take_worker()
+                try:
+                    w.conn.send_bytes(data)
+                except OSError:   # the idle worker had died: the job never reached it
+                    w.kill()
+                    todo.appendleft(i)
+                    continue
+                del data
+                limit = self.deadline_of(jobs[i])
+                w.index, w.limit_s, w.started = i, limit, False
+                w.kill_at = (time.monotonic() + START_GRACE_S + limit + self.kill_grace_s if limit is not None
+                             else float("inf"))
+                self._busy.append(w)
+                mine.append(w)
+            if not mine:
                 continue
-            self.pool_breaks += 1
-            self._drain(started)
-            self._discard_pool()
-            suspects = []
-            for i in sorted(lost):
-                if (token, i) in started:
-                    suspects.append(i)
-                else:
-                    lost_unstarted[i] = lost_unstarted.get(i, 0) + 1
-                    (suspects if lost_unstarted[i] >= MAX_LOST_UNSTARTED else todo).append(i)
-            yield from self._run_isolated(fn, jobs, suspects, on_error)
-
-    def _run_isolated(self, fn: Callable, jobs: list, indices: list[int],
-                      on_error: OnError | None) -> Iterator[tuple[int, object]]:
-        """Run each job in a process of its own (``workers`` at a time); a death is that job's."""
-        queue = list(indices)
-        running: dict = {}  # sentinel/conn -> (index, process, conn)
-        while queue or running:
-            while queue and len(running) < self.workers:
-                i = queue.pop(0)
-                recv, send = self.ctx.Pipe(duplex=False)
-                p = self.ctx.Process(target=_run_alone, args=(send, fn, jobs[i]), daemon=True)
-                p.start()
-                send.close()
-                running[i] = (p, recv)
-            ready = mpc.wait([c for _, c in running.values()] + [p.sentinel for p, _ in running.values()])
-            for i, (p, conn) in list(running.items()):
-                if conn not in ready and p.sentinel not in ready:
+            next_kill = min(w.kill_at for w in mine)
+            timeout = None if next_kill == float("inf") else max(0.0, next_kill - time.monotonic())
+            ready = set(mpc.wait([w.conn for w in mine] + [w.process.sentinel for w in mine], timeout))
+            now = time.monotonic()
+            for w in list(mine):
+                i = w.index
+                if w.conn not in ready and w.process.sentinel not in ready:
+                    if now >= w.kill_at:
+                        mine.remove(w)
+                        self.deadline_kills += 1
+                        self._drop(w, kill=True)
+                        yield i, fail(i, f"the episode ran past its wall-clock limit of {w.limit_s:g} s by more "
+                                         f"than {self.kill_grace_s:g} s without returning, so its worker process "
+                                         f"was killed (a controller stuck in native code, or one that switched off "
+                                         f"the watchdog)", "timeout")
                     continue
-                msg, closed = None, False
+                msg = None
                 try:
-                    if conn.poll():
-                        msg = conn.recv()
+                    if w.conn.poll():
+                        msg = w.conn.recv()   # a whole message: the worker is writing it
                 except (EOFError, OSError):
-                    closed = True  # the process is gone (or going) without a message
-                if msg is None and not closed and p.is_alive():
-                    continue  # woke for another process
-                p.join()
-                conn.close()
-                del running[i]
-                if msg is not None and msg[0] == "ok":
-                    yield i, msg[1]
+                    msg = None
+                if msg is not None and msg[0] == "started":
+                    w.started = True
+                    if w.limit_s is not None:
+                        w.kill_at = now + w.limit_s + self.kill_grace_s
                     continue
-                reason = (f"the episode raised {msg[1]}" if msg is not None else death_reason(p.exitcode))
-                if on_error is None:
-                    raise RuntimeError(reason)
-                yield i, on_error(jobs[i], reason)
-
-    def _terminate_pool(self) -> None:
-        pool, self._pool = self._pool, None
-        if pool is None:
-            return
-        for p in list((getattr(pool, "_processes", None) or {}).values()):  # no public way before 3.14
-            try:
-                p.terminate()
-            except Exception:  # noqa: BLE001 - already gone
-                pass
-        pool.shutdown(wait=False, cancel_futures=True)
-        if self._queue is not None:
-            self._queue.close()
-            self._queue = None
+                mine.remove(w)
+                if msg is None:   # the pipe closed or the process ended without an answer
+                    w.process.join(JOIN_TIMEOUT_S)
+                    code = w.process.exitcode
+                    self._drop(w, kill=code is None)
+                    if not w.started and i not in resent:   # it died before taking the job (e.g. while idle)
+                        resent.add(i)
+                        todo.appendleft(i)
+                        continue
+                    yield i, fail(i, death_reason(code))
+                elif msg[0] == "ok":
+                    self._release(w)
+                    yield i, msg[1]
+                else:
+                    self._release(w)
+                    yield i, fail(i, msg[1])
 
     def close(self) -> None:
-        """Shut the pool down; if a ``map`` is still unfinished, stop its workers at once."""
-        if self._active:
-            self._terminate_pool()
-        self._discard_pool()
+        """Stop the workers; if a ``map`` is still unfinished, kill its workers at once."""
+        busy, self._busy = self._busy, []
+        for w in busy:
+            w.kill()
+        idle, self._idle = self._idle, []
+        for w in idle:
+            w.retire()
 
     def __enter__(self):
         return self

@@ -12,6 +12,8 @@ from pathlib import Path
 
 import numpy as np
 
+from bench.fileio import unlink_quietly
+
 #: x264 speed/size trade-off; "veryfast" keeps encoding well ahead of a software renderer.
 X264_PRESET = "veryfast"
 #: x264 constant rate factor (lower is better quality; 23 is x264's own default).
@@ -56,10 +58,7 @@ class Mp4Writer:
             self._gen.close()
         except Exception:  # noqa: BLE001
             pass
-        try:
-            os.unlink(self._tmp)
-        except FileNotFoundError:
-            pass
+        unlink_quietly(self._tmp)
 
     def __enter__(self):
         return self

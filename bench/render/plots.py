@@ -12,6 +12,8 @@ from __future__ import annotations
 import math
 from pathlib import Path
 
+from bench.fileio import atomic_target
+
 
 PLOTS_FILE = "plots.png"
 #: Points per line at most; longer traces are thinned by a stride (plots only).
@@ -145,10 +147,8 @@ def plot_trace(trace, result: dict, path: str | Path, score_from: float | None =
         top.text(min(fv), 0.02, f" first violation {min(fv):.2f} s", transform=top.get_xaxis_transform(),
                  fontsize=7, color="#d62d20")
     axes[-1].set_xlim(float(A["t"][0]), t_end)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(f".{path.stem}.partial.png")
-    fig.savefig(tmp)
-    tmp.replace(path)
+    with atomic_target(path) as tmp:
+        fig.savefig(tmp)
     return path
 
 

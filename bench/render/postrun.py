@@ -11,8 +11,6 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-VIDEO_CHOICES = ("none", "failed", "all")
-
 
 def _foot_names(scenario) -> list[str] | None:
     try:

@@ -19,6 +19,7 @@ from pathlib import Path
 
 import numpy as np
 
+from bench.fileio import atomic_target
 from bench.render.encode import Mp4Writer
 from bench.render.overlays import FrameInfo, OverlayPainter
 from bench.render.replay import Recording, build_replay, load_recording, score_from_of
@@ -229,9 +230,8 @@ def poster_path(video: Path) -> Path:
 
 def save_poster(img, video: Path) -> Path:
     p = poster_path(video)
-    tmp = p.with_name(f".{p.stem}.partial.jpg")
-    img.convert("RGB").save(tmp, "JPEG", quality=82)
-    os.replace(tmp, p)
+    with atomic_target(p) as tmp:
+        img.convert("RGB").save(tmp, "JPEG", quality=82)
     return p
 
 

@@ -6,32 +6,30 @@ Public API:
 - `derive(scenario, overrides, suffix)`, `expand_trials(scenario)`
 - `scenario_id(name, variant)`, `scenario_slug(id)`
 - `scenario_json_schema()`
+- the criteria registry: `register_criterion`, `unregister_criterion`, `criterion_names`, `get_criterion`
 - `get_path` / `set_path` / `resolve_path` (dotted paths into a raw document)
-- the schema dataclasses (`Scenario`, `RobotRef`, terrain, payload, disturbance, fault, command classes)
+- the schema dataclasses (`Scenario`, `RobotRef`, terrain, payload, disturbance, command classes; fault
+  kinds are in `bench.faults`, `FAULT_KINDS` is a live view of that registry)
 """
 
 from bench.errors import ScenarioError, ScenarioErrors
+from bench.scenario.criteria import criterion_names, get_criterion, register_criterion, unregister_criterion
 from bench.scenario.compose import derive, expand_matrix, load_merged
 from bench.scenario.ids import scenario_id, scenario_slug
 from bench.scenario.jsonschema import scenario_json_schema
 from bench.scenario.loader import find_scenario_files, load_file, load_scenarios
 from bench.scenario.paths import get_path, resolve_path, set_path
 from bench.scenario.schema import (
-    CRITERIA,
     DISTURBANCE_KINDS,
     FAULT_KINDS,
     TERRAIN_KINDS,
     Blocks,
     Choice,
     Command,
-    Derate,
     Drain,
     FrictionPatch,
     Ground,
     Initial,
-    Latency,
-    Limp,
-    Lock,
     MassStep,
     Payload,
     Push,
@@ -39,14 +37,11 @@ from bench.scenario.schema import (
     RobotRef,
     Rough,
     Scenario,
-    SensorFreeze,
-    SensorNoise,
     Slope,
     SoftPatch,
     Stairs,
     SteadyForce,
     Uniform,
-    register_criterion,
 )
 from bench.scenario.trials import expand_trials
 

@@ -26,6 +26,7 @@ from typing import Any
 
 import bench
 from bench.errors import ScenarioError, ScenarioErrors
+from bench.fileio import is_inside
 from bench.scenario.paths import set_path, split_path
 from bench.scenario.schema import Scenario
 from bench.scenario.validate import validate_document
@@ -45,10 +46,6 @@ def allowed_roots(scenario_file: str | Path, roots: Iterable[str | Path] = ()) -
     out = [Path(scenario_file).resolve().parent, *BUNDLED_ROOTS]
     out.extend(Path(r).resolve() for r in roots)
     return out
-
-
-def _inside(path: Path, roots: Sequence[Path]) -> bool:
-    return any(path == r or path.is_relative_to(r) for r in roots)
 
 
 # --------------------------------------------------------------------------- merging
@@ -118,7 +115,7 @@ def _extends(doc: Document, chain: list[tuple[Path, str]], roots: Sequence[Path]
             loop = " -> ".join([n for _, n in chain] + [shown])
             raise ScenarioErrors([doc.error(("extends",), f"extends loop: {loop}",
                                             f"{doc.file} and {name} extend each other")])
-    if not _inside(resolved, roots):
+    if not is_inside(resolved, roots):
         raise ScenarioErrors([doc.error(("extends",), f"{target!r} is outside the allowed folders",
                                         "extends may reach the scenario's own folder tree, the bundled models/ "
                                         "and scenarios/, or a folder passed as a root")])

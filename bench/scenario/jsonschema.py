@@ -90,12 +90,12 @@ class _Gen:
         return out
 
     def type(self, tp: Any, meta: dict, allow_empty: bool = False) -> dict:
+        table = schema.UNIONS.get(tp)
+        if table is not None:   # a one-key item: a Union of kinds, or a marker whose kinds come from a registry
+            return {"type": "object", "minProperties": 1, "maxProperties": 1,
+                    "properties": {k: self.ref(c) for k, c in table.items()}, "additionalProperties": False}
         if is_union(tp):
             args = get_args(tp)
-            table = schema.UNIONS.get(tp)
-            if table is not None:
-                return {"type": "object", "minProperties": 1, "maxProperties": 1,
-                        "properties": {k: self.ref(c) for k, c in table.items()}, "additionalProperties": False}
             rest = [a for a in args if a is not type(None)]
             inner = self.type(rest[0], meta, allow_empty) if len(rest) == 1 else {"anyOf": [
                 self.type(a, meta, allow_empty) for a in rest]}

@@ -13,8 +13,8 @@ from collections.abc import Iterable
 from pathlib import Path
 
 from bench.errors import ScenarioError, ScenarioErrors
-from bench.fileio import not_regular
-from bench.scenario.compose import _inside, allowed_roots, expand_matrix, load_merged
+from bench.fileio import is_inside, not_regular
+from bench.scenario.compose import allowed_roots, expand_matrix, load_merged
 from bench.scenario.schema import Scenario
 from bench.scenario.trials import check_randomize
 from bench.scenario.validate import validate_document
@@ -56,7 +56,7 @@ def named_file_problems(scenario: Scenario, roots: list[Path]) -> list[ScenarioE
     if manifest is None:
         return []
     resolved = Path(manifest).resolve()
-    if not _inside(resolved, roots):
+    if not is_inside(resolved, roots):
         return [scenario.error("robot.manifest", f"robot manifest {str(manifest)!r} is outside the allowed "
                                "folders", _OUTSIDE_HINT)]
     try:
@@ -66,7 +66,7 @@ def named_file_problems(scenario: Scenario, roots: list[Path]) -> list[ScenarioE
     mjcf = doc.data.get("mjcf")
     if not (isinstance(mjcf, str) and mjcf):
         return []
-    if not _inside((resolved.parent / mjcf).resolve(), roots):
+    if not is_inside((resolved.parent / mjcf).resolve(), roots):
         loc = doc.locs.value(("mjcf",))
         return [ScenarioError(loc.file, loc.line, loc.col, "mjcf", f"MJCF {mjcf!r} is outside the allowed folders",
                               _OUTSIDE_HINT)]
@@ -85,7 +85,7 @@ def mjcf_file_problems(mjcf: Path, roots: list[Path]) -> list[ScenarioError]:
     refs, problems = scan_mjcf(mjcf)
     out = [ScenarioError(p.file, p.line, p.col, p.field, p.message) for p in problems]
     for ref in refs:
-        if not all(_inside(place, roots) for place in places_to_check(ref)):
+        if not all(is_inside(place, roots) for place in places_to_check(ref)):
             out.append(ScenarioError(ref.file, ref.line, ref.col, ref.field,
                                      f"file {ref.value!r} named by the MJCF is outside the allowed folders",
                                      _OUTSIDE_HINT))

@@ -30,7 +30,7 @@ import xml.parsers.expat
 from dataclasses import dataclass
 from pathlib import Path
 
-from bench.fileio import not_regular
+from bench.fileio import FileReadError, not_regular, read_limited
 
 MAX_BYTES = 64 << 20   # 64 MiB: the bundled MJCF is 10 KiB; mesh-heavy robots stay far below
 MAX_DEPTH = 16
@@ -96,7 +96,10 @@ class _Scan:
                 self.problems.append(MjcfProblem(shown, 1, 1, "mjcf", f"MJCF file of {size} bytes is over the "
                                                  f"limit of {MAX_BYTES} bytes"))
                 return
-            data = path.read_bytes()
+            data = read_limited(path, MAX_BYTES)
+        except FileReadError as exc:   # swapped for a FIFO or device since the check, or grew meanwhile
+            self.problems.append(MjcfProblem(shown, 1, 1, "mjcf", f"cannot read the MJCF file: {exc}"))
+            return
         except OSError:
             return      # missing or unreadable: the robot loader reports it with MuJoCo's message
         parser = xml.parsers.expat.ParserCreate()

@@ -9,6 +9,9 @@ so they cannot drift apart.
 Terrain pieces, disturbances and faults are one-key mappings in YAML
 (`- slope: {...}`); their dataclasses carry a class attribute `kind` equal to
 that key, and the `*_KINDS` tables list them (add a class there to add a kind).
+Fault kinds are the exception: each is a module of its own registered in
+`bench.faults` (a user's kind too), and `FAULT_KINDS` is a live view of that
+registry.
 
 Cross-field rules that a single field cannot express (a drop before an attach,
 an event after the end, overlapping terrain) live in each class's
@@ -20,65 +23,23 @@ from __future__ import annotations
 import dataclasses
 import math
 from collections.abc import Iterator, Mapping
-from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, ClassVar, Literal, Union
 
-Problem = tuple  # (relative path tuple, message, hint or None)
-
-_MISSING = dataclasses.MISSING
-
-#: Upper bounds that keep a scenario physically meaningful and affordable to build.
-MAX_DURATION_S = 600.0
-MAX_STAIR_RISE_M = 0.5
-MAX_HFIELD_CELLS = 4_000_000  # rough terrain heightfield size (cells), about 16 MB of float32
-MAX_LIST_ITEMS = 1000
-
-
-def spec(
-    default: Any = _MISSING,
-    *,
-    doc: str,
-    unit: str | None = None,
-    ge: float | None = None,
-    gt: float | None = None,
-    le: float | None = None,
-    lt: float | None = None,
-    min_items: int | None = None,
-    max_items: int | None = MAX_LIST_ITEMS,
-    time: str | None = None,
-    parse: Any = None,
-    json: dict | None = None,
-    default_factory: Any = _MISSING,
-    yaml: bool = True,
-    default_doc: str | None = None,
-    check: Any = None,
-    required_unless: str | None = None,
-) -> Any:
-    """Declare one field.
-
-    `ge/gt/le/lt` bound a number (for a list of numbers, every item).
-    `time="event"` marks an episode time that must come before `duration`;
-    `time="end"` one that may equal it. `parse` is a custom converter
-    `(validator, raw, path) -> value` for the few fields whose YAML shape is not
-    a plain type; `json` is then its JSON Schema. `check(items)` (list fields)
-    yields problems across the items. `required_unless="preset"` marks a
-    required field that another field (here a preset) can fill instead. `yaml=False` marks a
-    computed attribute that is not a YAML key. `default_doc` describes a
-    default that depends on other fields (the dataclass default is then None).
-    """
-    meta = {
-        "doc": doc, "unit": unit, "ge": ge, "gt": gt, "le": le, "lt": lt,
-        "min_items": min_items, "max_items": max_items, "time": time, "parse": parse, "json": json,
-        "yaml": yaml, "default_doc": default_doc, "check": check,
-        "required_unless": required_unless,
-    }
-    if default_factory is not _MISSING:
-        return dataclasses.field(default_factory=default_factory, metadata=meta)
-    return dataclasses.field(default=default, metadata=meta)
-
-
-_frozen = dataclass(frozen=True, kw_only=True)
+from bench.faults.registry import SchemaTable
+from bench.faults.sensors import SENSORS  # noqa: F401 - re-exported
+from bench.scenario import criteria as criteria_registry
+from bench.scenario.criteria import all_criteria, criterion_names, get_criterion, unit_of
+from bench.fieldspec import AT as _AT
+from bench.fieldspec import (  # noqa: F401 - re-exported: the schema's declaration vocabulary
+    MAX_DURATION_S,
+    MAX_HFIELD_CELLS,
+    MAX_LIST_ITEMS,
+    MAX_STAIR_RISE_M,
+    Problem,
+    spec,
+)
+from bench.fieldspec import frozen as _frozen
 
 Vec3 = tuple[float, float, float]
 Range2 = tuple[float, float]
@@ -294,7 +255,6 @@ def _terrain_order(items: list[tuple[int, Any]]) -> Iterator[Problem]:
 
 # --------------------------------------------------------------------------- payloads
 
-_AT = dict(doc="time", unit="s", ge=0.0, le=MAX_DURATION_S, time="event")
 
 
 @_frozen
@@ -444,81 +404,13 @@ AnyDisturbance = Union[Push, PushTrain, SteadyForce]
 
 # --------------------------------------------------------------------------- faults
 
-SENSORS = ("imu_orientation", "imu_gyro", "imu_accel", "joint_pos", "joint_vel")
-Sensor = Literal["imu_orientation", "imu_gyro", "imu_accel", "joint_pos", "joint_vel"]
+
+class AnyFault:
+    """One item of `faults:`: a one-key mapping naming a kind from the fault registry (`bench.faults`)."""
 
 
-def _parse_joints(v: Any, raw: Any, path: tuple) -> Any:
-    if raw == "all":
-        return "all"
-    if isinstance(raw, str):
-        return v.fail(path, f"expected 'all' or a list of joint names, got {raw!r}", "write [FL_knee] for one joint")
-    return v.convert(tuple[str, ...], raw, path, {"min_items": 1, "max_items": MAX_LIST_ITEMS})
-
-
-_JOINT = dict(doc="joint name from the robot manifest")
-
-
-@_frozen
-class Derate:
-    """Torque limits of some joints scaled by `factor` from `at` on."""
-
-    kind: ClassVar[str] = "derate"
-    at: float = spec(**_AT)
-    joints: Any = spec("all", doc="'all' or a list of joint names", parse=_parse_joints, json={
-        "anyOf": [{"const": "all"}, {"type": "array", "items": {"type": "string"}, "minItems": 1}]})
-    factor: float = spec(doc="torque limit multiplier", ge=0.0, le=1.0)
-
-
-@_frozen
-class Lock:
-    """A joint frozen at its position from `at` on."""
-
-    kind: ClassVar[str] = "lock"
-    at: float = spec(**_AT)
-    joint: str = spec(**_JOINT)
-
-
-@_frozen
-class Limp:
-    """A joint producing no torque from `at` on."""
-
-    kind: ClassVar[str] = "limp"
-    at: float = spec(**_AT)
-    joint: str = spec(**_JOINT)
-
-
-@_frozen
-class Latency:
-    """Torques the controller returns reach the motors `delay` late from `at` on (whole control ticks)."""
-
-    kind: ClassVar[str] = "latency"
-    at: float = spec(**_AT)
-    delay: float = spec(doc="added command delay, rounded to whole control ticks", unit="s", ge=0.0, le=1.0)
-
-
-@_frozen
-class SensorNoise:
-    """Gaussian noise (plus a bias) on one sensor from `at` on."""
-
-    kind: ClassVar[str] = "sensor_noise"
-    at: float = spec(0.0, **_AT)
-    sensor: Sensor = spec(doc="which sensor")
-    std: float = spec(doc="noise standard deviation, in the sensor's unit", ge=0.0, le=1e3)
-    bias: float = spec(0.0, doc="constant offset, in the sensor's unit", ge=-1e3, le=1e3)
-
-
-@_frozen
-class SensorFreeze:
-    """One sensor stuck at its last value from `at` on."""
-
-    kind: ClassVar[str] = "sensor_freeze"
-    at: float = spec(**_AT)
-    sensor: Sensor = spec(doc="which sensor")
-
-
-FAULT_KINDS: dict[str, type] = {c.kind: c for c in (Derate, Lock, Limp, Latency, SensorNoise, SensorFreeze)}
-AnyFault = Union[Derate, Lock, Limp, Latency, SensorNoise, SensorFreeze]
+#: Fault kind -> schema class, a live view of the registry (built-ins and plugins alike).
+FAULT_KINDS = SchemaTable()
 
 # --------------------------------------------------------------------------- commands
 
@@ -542,65 +434,12 @@ def _commands_sorted(items: list[tuple[int, Any]]) -> Iterator[Problem]:
 # --------------------------------------------------------------------------- criteria
 
 
-@dataclass(frozen=True)
-class CriterionInfo:
-    name: str
-    boolean: bool
-    doc: str
-    ge: float | None = 0.0
-    le: float | None = None
-    unit: str | None = None
-
-
 #: Default start of the scoring window, s (skips the first settling of the stance).
 DEFAULT_SCORE_FROM_S = 0.5
 
-#: Criterion names a scenario may use: the built-ins below, plus every name in the entry point
-#: group ``bench.criteria`` (read from package metadata, nothing imported), plus `register_criterion`.
-CRITERIA: dict[str, CriterionInfo] = {}
-
-
-def register_criterion(name: str, *, boolean: bool = False, doc: str = "", ge: float | None = 0.0,
-                       le: float | None = None, unit: str | None = None) -> None:
-    """Make `name` a valid key of `criteria:` (boolean ones take `true`, others a limit)."""
-    CRITERIA[name] = CriterionInfo(name, boolean, doc, ge, le, unit)
-
-
-for _name, _bool, _doc, _le, _unit in (
-    ("no_fall", True, "the trunk/thighs never touch the ground", None, None),
-    ("height_error_max", False, "max |trunk height - nominal height|", None, "m"),
-    ("height_error_rms", False, "RMS trunk height error", None, "m"),
-    ("roll_error_max_deg", False, "max |roll|", 180.0, "deg"),
-    ("pitch_error_max_deg", False, "max |pitch| of the trunk against level", 180.0, "deg"),
-    ("roll_error_mean_deg", False, "mean |roll|", 180.0, "deg"),
-    ("pitch_error_mean_deg", False, "mean |pitch| of the trunk against level", 180.0, "deg"),
-    ("drift_max", False, "max horizontal drift from the start while commanded to stand", None, "m"),
-    ("distance_min", False, "net horizontal distance travelled, at least", None, "m"),
-    ("velocity_rmse_max", False, "RMS error of heading-frame velocity vs command, once settled", None, "m/s"),
-    ("yaw_rate_rmse_max", False, "RMS error of yaw rate vs command", None, "rad/s"),
-    ("torque_saturation_max", False, "fraction of ticks with any joint at its torque limit", 1.0, None),
-    ("controller_p99_ms_max", False, "99th percentile controller compute time", None, "ms"),
-    ("pass_rate_min", False, "fraction of trials that pass", 1.0, None),
-):
-    register_criterion(_name, boolean=_bool, doc=_doc, le=_le, unit=_unit)
-
-
-def _register_plugin_criteria() -> None:
-    from importlib.metadata import entry_points
-
-    try:
-        names = [ep.name for ep in entry_points(group="bench.criteria")]
-    except Exception:  # noqa: BLE001 - broken metadata must not break loading
-        return
-    for name in names:
-        if name not in CRITERIA:
-            register_criterion(name, doc="(from a plugin)", le=None)
-
-
-_register_plugin_criteria()
-
 
 def _parse_criteria(v: Any, raw: Any, path: tuple) -> Any:
+    """criterion name -> limit, checked against the criteria registry (`bench.scenario.criteria`)."""
     if raw is None:
         return {}
     if not isinstance(raw, dict):
@@ -610,21 +449,27 @@ def _parse_criteria(v: Any, raw: Any, path: tuple) -> Any:
     ok = True
     for name, value in raw.items():
         p = path + (name,)
-        info = CRITERIA.get(name)
+        if name not in criterion_names():
+            v.unknown_key(p, name, criterion_names())
+            ok = False
+            continue
+        info = get_criterion(name)
         if info is None:
-            v.unknown_key(p, name, CRITERIA)
+            v.fail(p, f"criterion {name!r} cannot be loaded: {criteria_registry.load_errors.get(name, 'unknown')}",
+                   "check the package that registers it (entry point group bench.criteria)", at_key=True)
             ok = False
             continue
         if value is None:  # lets a file that extends another drop an inherited criterion
             continue
-        if info.boolean:
+        if getattr(info, "boolean", False):
             if not isinstance(value, bool):
                 v.fail(p, f"{name} is a yes/no criterion: expected true or false, got {v.describe(value)}")
                 ok = False
             elif value:
                 out[name] = True
             continue
-        got = v.convert(float, value, p, {"ge": info.ge, "le": info.le, "unit": info.unit})
+        got = v.convert(float, value, p, {"ge": getattr(info, "ge", None), "le": getattr(info, "le", None),
+                                          "unit": unit_of(info)})
         if got is v.INVALID:
             ok = False
         else:
@@ -634,17 +479,18 @@ def _parse_criteria(v: Any, raw: Any, path: tuple) -> Any:
 
 def _criteria_json() -> dict:
     props = {}
-    for info in CRITERIA.values():
-        desc = info.doc + (f" [{info.unit}]" if info.unit else "")
-        if info.boolean:
-            props[info.name] = {"description": desc, "type": ["boolean", "null"]}
+    for name, info in all_criteria().items():
+        unit = unit_of(info)
+        desc = str(getattr(info, "description", "")) + (f" [{unit}]" if unit else "")
+        if getattr(info, "boolean", False):
+            props[name] = {"description": desc, "type": ["boolean", "null"]}
         else:
             s: dict[str, Any] = {"description": desc, "type": ["number", "null"]}
-            if info.ge is not None:
+            if getattr(info, "ge", None) is not None:
                 s["minimum"] = info.ge
-            if info.le is not None:
+            if getattr(info, "le", None) is not None:
                 s["maximum"] = info.le
-            props[info.name] = s
+            props[name] = s
     return {"type": ["object", "null"], "properties": props, "additionalProperties": False}
 
 

@@ -121,6 +121,8 @@ class Validator:
     def convert(self, tp: Any, raw: Any, path: tuple, meta: dict) -> Any:
         if tp is Any:
             return copy.deepcopy(raw)
+        if tp in schema.UNIONS and not is_union(tp):   # a one-key item whose kinds come from a registry
+            return self._one_key(schema.UNIONS[tp], raw, path)
         if is_union(tp):
             return self._union(tp, raw, path, meta)
         origin = get_origin(tp)
@@ -251,6 +253,10 @@ class Validator:
                              f"{', '.join(map(str, raw))}", f"write each as its own '{example}' item")
         kind, body = next(iter(raw.items()))
         if kind not in table:
+            broken = getattr(table, "load_errors", {}).get(kind)   # a registered plugin that fails to load
+            if broken:
+                return self.fail(path + (kind,), f"{what} kind {kind!r} cannot be loaded: {broken}",
+                                 "check the package that registers it", at_key=True)
             return self.unknown_key(path + (kind,), kind, table, what=f"{what} kind")
         return self.build(table[kind], body, path + (kind,))
 

@@ -40,6 +40,7 @@ import yaml
 from yaml.nodes import MappingNode, Node, ScalarNode, SequenceNode
 
 from bench.errors import ScenarioError, ScenarioErrors
+from bench.fileio import FileReadError, read_limited
 
 MAX_FILE_BYTES = 1 << 20  # 1 MiB: scenario files are a few KiB
 MAX_DEPTH = 32  # the deepest real scenario nests about 6 levels
@@ -94,9 +95,6 @@ class Locations:
         path = tuple(path)
         loc = self.keys.get(path)
         return loc if loc is not None else self.value(path)
-
-    def has(self, path: Path_) -> bool:
-        return tuple(path) in self.values
 
     def copy(self) -> Locations:
         new = Locations(self.default)
@@ -484,12 +482,11 @@ def load_yaml(path: str | Path) -> Document:
         if size > MAX_FILE_BYTES:
             raise ScenarioErrors([ScenarioError(file, 1, 1, "", f"file is {size} bytes, more than the "
                                                 f"{MAX_FILE_BYTES} byte limit for a scenario")])
-        with p.open("rb") as fh:
-            raw = fh.read(MAX_FILE_BYTES + 1)
+        raw = read_limited(p, MAX_FILE_BYTES)   # refuses a FIFO or device, and a file that grew meanwhile
+    except FileReadError as e:
+        raise ScenarioErrors([ScenarioError(file, 1, 1, "", f"cannot read file: {e}")]) from None
     except OSError as e:
         raise ScenarioErrors([ScenarioError(file, 1, 1, "", f"cannot read file: {e.strerror or e}")]) from None
-    if len(raw) > MAX_FILE_BYTES:
-        raise ScenarioErrors([ScenarioError(file, 1, 1, "", f"file is larger than {MAX_FILE_BYTES} bytes")])
     if raw.startswith(b"\xef\xbb\xbf"):
         raw = raw[3:]
     try:

@@ -1,20 +1,21 @@
-"""Criteria: a named rule over metrics that a scenario sets a limit for.
+"""The built-in criteria: named rules over metrics that a scenario sets a limit for.
 
 A criterion is an object with ``name``, ``description``, ``unit`` and
-``evaluate(metrics, series, trace, limit, score_from) -> CriterionResult``.
-Criteria are found through the entry point group ``bench.criteria``; the
-built-ins below are registered there by this package's own ``pyproject.toml``,
-exactly as a user's would be.
+``evaluate(metrics, series, trace, limit, score_from) -> CriterionResult``,
+plus the attributes validation reads (``boolean``, ``ge``, ``le``) and
+``direction`` (``"max"``: a ceiling, ``"min"``: a floor). The built-ins below
+are registered in the entry point group ``bench.criteria`` by this package's
+own ``pyproject.toml``, exactly as a user's would be; the one registry of
+criteria is `bench.scenario.criteria`.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
-from importlib.metadata import entry_points
 
 import numpy as np
 
-ENTRY_POINT_GROUP = "bench.criteria"
+from bench.scenario.criteria import all_criteria
 
 
 @dataclass
@@ -58,6 +59,14 @@ class MetricCriterion:
     unit: str = ""
     sense: str = "max"
     series: str | None = None
+    ge: float | None = 0.0      # the limits a scenario may write
+    le: float | None = None
+    boolean = False
+
+    @property
+    def direction(self) -> str:
+        """``"max"``: the value must stay at or under the limit; ``"min"``: at or over it."""
+        return self.sense
 
     def evaluate(self, metrics, series, trace, limit, score_from: float) -> CriterionResult:
         value = metrics.get(self.metric)
@@ -81,6 +90,8 @@ class NoFall:
     name: str = "no_fall"
     description: str = "the robot does not fall (trunk or leg on the ground, or trunk under the fall height)"
     unit: str = ""
+    boolean = True
+    direction = "max"   # the value is 1 when the robot fell, 0 when not: a ceiling with no written limit
 
     def evaluate(self, metrics, series, trace, limit, score_from: float) -> CriterionResult:
         fell = metrics.get("fell", 0.0) > 0
@@ -96,13 +107,13 @@ HEIGHT_ERROR_MAX = MetricCriterion("height_error_max", "height_error_max",
                                    " m", series="height_error")
 HEIGHT_ERROR_RMS = MetricCriterion("height_error_rms", "height_error_rms", "RMS trunk height error, m", " m")
 ROLL_ERROR_MAX_DEG = MetricCriterion("roll_error_max_deg", "roll_error_deg_max", "largest |roll| of the trunk, deg",
-                                     " deg", series="roll_error_deg")
+                                     " deg", series="roll_error_deg", le=180.0)
 PITCH_ERROR_MAX_DEG = MetricCriterion("pitch_error_max_deg", "pitch_error_deg_max",
-                                      "largest |pitch| of the trunk, deg", " deg", series="pitch_error_deg")
+                                      "largest |pitch| of the trunk, deg", " deg", series="pitch_error_deg", le=180.0)
 ROLL_ERROR_MEAN_DEG = MetricCriterion("roll_error_mean_deg", "roll_error_deg_mean", "mean |roll| of the trunk, deg",
-                                      " deg")
+                                      " deg", le=180.0)
 PITCH_ERROR_MEAN_DEG = MetricCriterion("pitch_error_mean_deg", "pitch_error_deg_mean",
-                                       "mean |pitch| of the trunk, deg", " deg")
+                                       "mean |pitch| of the trunk, deg", " deg", le=180.0)
 DRIFT_MAX = MetricCriterion("drift_max", "drift_max", "largest horizontal drift while commanded to stand, m", " m",
                             series="drift")
 DISTANCE_MIN = MetricCriterion("distance_min", "distance", "net horizontal distance travelled, m (at least)", " m",
@@ -112,24 +123,31 @@ VELOCITY_RMSE_MAX = MetricCriterion("velocity_rmse_max", "velocity_rmse",
 YAW_RATE_RMSE_MAX = MetricCriterion("yaw_rate_rmse_max", "yaw_rate_rmse",
                                     "RMSE of yaw rate against the command once settled, rad/s", " rad/s")
 TORQUE_SATURATION_MAX = MetricCriterion("torque_saturation_max", "torque_saturation",
-                                        "share of ticks with a joint torque at its limit", "")
+                                        "share of ticks with a joint torque at its limit", "", le=1.0)
 CONTROLLER_P99_MS_MAX = MetricCriterion("controller_p99_ms_max", "controller_ms_p99",
                                         "99th percentile of controller compute time per tick, ms", " ms")
 
 
+@dataclass(frozen=True)
+class PassRate:
+    """Judged over a scenario's trials (the Wilson lower bound of the pass rate), never per episode."""
+
+    name: str = "pass_rate_min"
+    description: str = "share of a scenario's trials that pass, at least (judged on its Wilson lower bound)"
+    unit: str = ""
+    ge: float = 0.0
+    le: float = 1.0
+    boolean = False
+    direction = "min"
+    scope = "trials"
+
+    def evaluate(self, metrics, series, trace, limit, score_from: float) -> CriterionResult:
+        raise TypeError("pass_rate_min is judged over trials, not over one episode")
+
+
+PASS_RATE_MIN = PassRate()
+
+
 def available() -> dict[str, object]:
-    """Every criterion found through the entry point group, by name."""
-    out = {}
-    for ep in entry_points(group=ENTRY_POINT_GROUP):
-        try:
-            out[ep.name] = ep.load()
-        except Exception:  # noqa: BLE001 - a broken plugin is reported when used
-            continue
-    return out
-
-
-def resolve(name: str):
-    crit = available().get(name)
-    if crit is None:
-        raise KeyError(f"unknown criterion {name!r}")
-    return crit
+    """Every criterion of the registry that loads, by name (the scoring side's view of it)."""
+    return all_criteria()

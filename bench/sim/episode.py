@@ -9,17 +9,27 @@ contact forces all belong to the same instant; the other substeps are plain
 a controller fault or timeout; each becomes a status with a reason, never an
 exception that unwinds the run.
 
-Hung controllers: on the main thread of a process (``bench run`` with one
-worker, and every worker process of ``--workers N``) a watchdog timer
-(``SIGALRM`` every ``WATCH_FRACTION`` of the smallest limit) interrupts a
+Hung controllers: on the main thread of a process (every worker process of
+``bench run``, and the bench's own process with ``--in-process``) a watchdog
+timer (``SIGALRM`` every ``WATCH_FRACTION`` of the smallest limit) interrupts a
 controller call that has run past the per-tick limit, or past the episode's
 wall-clock deadline, by raising a private exception inside it; the episode ends
 as ``timeout`` naming the tick and time. It costs one attribute write per call
-(the timer is set once per episode, not per tick). Elsewhere (another thread,
-such as a Dask worker's, or when the process already uses ``SIGALRM``) each call
-is measured after it returns instead. Code stuck inside a C call that never
-returns cannot be interrupted in-process (Python runs signal handlers between
-bytecodes); a controller program behind ``exec:`` has its own timeout.
+(the timer is set once per episode, not per tick). Once per watchdog period,
+after a call, it checks that the controller has not replaced its handler,
+stopped its timer or blocked ``SIGALRM``, and puts them back if so (listed in
+``EpisodeResult.watchdog_restored``). Elsewhere (another thread, such as a Dask
+worker's, or when the process already uses ``SIGALRM``) each call is measured
+after it returns instead. Code stuck inside a C call that never returns cannot
+be interrupted in-process (Python runs signal handlers between bytecodes), nor
+can a call that switches the watchdog off and then hangs: the process executor
+kills such a worker past the episode's deadline; a controller program behind
+``exec:`` has its own timeout.
+
+Whatever a controller raises in ``reset``, ``step`` or ``stats`` (``SystemExit``,
+``KeyboardInterrupt``, ``GeneratorExit``, any ``BaseException``) ends its
+episode as ``error`` with the exception and the tick; only the user's own Ctrl-C
+goes through (see :mod:`bench.sim.interrupts`).
 
 MuJoCo's warnings are captured while an episode runs (MuJoCo's own message
 text, instead of its default of printing and writing ``MUJOCO_LOG.TXT`` into
@@ -45,8 +55,11 @@ import mujoco
 import numpy as np
 
 from bench.controllers.base import Observation
+from bench.faults import FaultContext
 from bench.sim.contacts import CONTACT_DIST_M, ContactTable
+from bench.sim.interrupts import UserInterrupts, raised_reason
 from bench.sim.events import Event, compile_forces, compile_masses, fault_events
+from bench.sim.faults import compile_faults
 from bench.sim.trace import Trace
 from bench.world.payloads import PAYLOAD_CONTYPE, PAYLOAD_RGBA
 
@@ -108,6 +121,10 @@ class _Watchdog:
         self.active = False
         self.period_s = 0.0
         self._previous = None
+        self.handler = self._on_alarm   # the one bound method installed, so that ``is`` can check it
+        self.checked_at = 0.0           # perf_counter of the latest ``check``
+        self.interval_s = 0.0
+        self.restored: list[str] = []   # what a controller changed and the watchdog put back
 
     def start(self) -> bool:
         limit = min(self.tick_limit_s, self.deadline - time.perf_counter())
@@ -121,12 +138,41 @@ class _Watchdog:
             if signal.getitimer(signal.ITIMER_REAL)[0] > 0:
                 return False
             self.period_s = min(max(limit * WATCH_FRACTION, WATCH_PERIOD_MIN_S), WATCH_PERIOD_MAX_S)
-            self._previous = signal.signal(signal.SIGALRM, self._on_alarm)
+            self._previous = signal.signal(signal.SIGALRM, self.handler)
             signal.setitimer(signal.ITIMER_REAL, self.period_s, self.period_s)
         except (ValueError, OSError):  # not the main interpreter, or the platform refuses
             return False
+        self.interval_s = signal.getitimer(signal.ITIMER_REAL)[1]   # as the system rounded it, for ``check``
+        self.checked_at = time.perf_counter()
         self.active = True
         return True
+
+    def check(self, now: float, where: str) -> None:
+        """After a controller call: put back the handler, the timer and the signal mask if a call changed them.
+
+        The controller runs in this process and could otherwise switch the watchdog off for good
+        (its own ``SIGALRM`` handler, ``setitimer(ITIMER_REAL, 0)``, ``SIGALRM`` blocked). The runner
+        calls this at most once per watchdog period (a few microseconds each time, nothing on the
+        other ticks), so the watchdog is back within one period. A call that switches the watchdog
+        off and then hangs is past this check; the executor's deadline kill is the backstop for that.
+        """
+        self.checked_at = now
+        changed = []
+        try:
+            if signal.getsignal(signal.SIGALRM) is not self.handler:
+                signal.signal(signal.SIGALRM, self.handler)
+                changed.append("SIGALRM handler replaced")
+            if signal.getitimer(signal.ITIMER_REAL)[1] != self.interval_s:
+                changed.append("timer stopped or changed")
+            if hasattr(signal, "pthread_sigmask") and signal.SIGALRM in signal.pthread_sigmask(signal.SIG_BLOCK, []):
+                signal.pthread_sigmask(signal.SIG_UNBLOCK, [signal.SIGALRM])
+                changed.append("SIGALRM blocked")
+            if changed:
+                signal.setitimer(signal.ITIMER_REAL, self.period_s, self.period_s)
+        except (ValueError, OSError):
+            return
+        if changed and len(self.restored) < MAX_WARNING_MESSAGES:
+            self.restored.append(f"{where}: {', '.join(changed)}; the bench's watchdog was put back")
 
     def stop(self) -> None:
         if not self.active:
@@ -237,6 +283,7 @@ class EpisodeResult:
     controller_stats: dict = field(default_factory=dict)
     mujoco_warnings: list[str] = field(default_factory=list)   # MuJoCo's messages, fatal or not
     interruptible: bool = False                                # whether the watchdog could run
+    watchdog_restored: list[str] = field(default_factory=list)  # watchdog state a controller changed, put back
     cpu_time_s: float = 0.0    # this process's CPU time over the same span as wall_time_s (the tick loop)
 
 
@@ -248,41 +295,6 @@ def _as_slice(idx):
     return idx
 
 
-class _SensorFaults:
-    """Noise, bias and freezing applied to the observation, drawn from the episode's generator."""
-
-    _FIELDS = {"imu_gyro": "imu_gyro", "imu_accel": "imu_accel", "joint_pos": "joint_pos",
-               "joint_vel": "joint_vel", "imu_orientation": "imu_quat"}
-
-    def __init__(self, faults, rng: np.random.Generator):
-        self.noise = [f for f in faults if f.kind == "sensor_noise"]
-        self.freeze = [f for f in faults if f.kind == "sensor_freeze"]
-        self.rng = rng
-        self.frozen: dict[str, np.ndarray] = {}
-        self.active = bool(self.noise or self.freeze)
-
-    def apply(self, obs: Observation, t: float) -> None:
-        for f in self.freeze:
-            name = self._FIELDS[f.sensor]
-            if t >= f.at:
-                if name not in self.frozen:
-                    self.frozen[name] = getattr(obs, name).copy()
-                getattr(obs, name)[:] = self.frozen[name]
-        for f in self.noise:
-            if t < f.at:
-                continue
-            name = self._FIELDS[f.sensor]
-            arr = getattr(obs, name)
-            if name == "imu_quat":
-                # A random small rotation (std in rad per axis) composed with the true one.
-                rv = self.rng.standard_normal(3) * f.std + f.bias
-                dq = np.empty(4)
-                mujoco.mju_axisAngle2Quat(dq, rv / (np.linalg.norm(rv) + 1e-12), float(np.linalg.norm(rv)))
-                out = np.empty(4)
-                mujoco.mju_mulQuat(out, arr, dq)
-                arr[:] = out
-            else:
-                arr += self.rng.standard_normal(arr.shape) * f.std + f.bias
 
 
 def run_episode(world, scenario, controller, robot, *, seed: int | None = None,
@@ -294,14 +306,15 @@ def run_episode(world, scenario, controller, robot, *, seed: int | None = None,
     deadline = math.inf if ep_limit is None or ep_limit <= 0 else t_start + float(ep_limit)
     watchdog = _Watchdog(limits.tick_timeout_s, deadline)
     captured: list[str] = []
-    with _CaptureMujocoWarnings(captured):
+    with _CaptureMujocoWarnings(captured), UserInterrupts() as user:
         interruptible = watchdog.start()
         try:
-            ep = _run_episode(world, scenario, controller, robot, seed, limits, watchdog, captured)
+            ep = _run_episode(world, scenario, controller, robot, seed, limits, watchdog, captured, user)
         finally:
             watchdog.stop()
     ep.mujoco_warnings = captured
     ep.interruptible = interruptible
+    ep.watchdog_restored = watchdog.restored
     return ep
 
 
@@ -314,7 +327,7 @@ def _timeout_reason(hung: _ControllerHung, limits: EpisodeLimits, where: str) ->
 
 
 def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits, watchdog: _Watchdog,
-                 captured: list[str]) -> EpisodeResult:
+                 captured: list[str], user: UserInterrupts) -> EpisodeResult:
     seed = int(scenario.seed if seed is None else seed)
     m = world.model
     d = mujoco.MjData(m)
@@ -332,19 +345,12 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     mass_scheds, mass_events = compile_masses(scenario.payloads, float(scenario.duration))
     events += mass_events + fault_events(scenario.faults, float(scenario.duration))
     events.sort(key=lambda e: e.t_start)
-    sensor_faults = _SensorFaults(scenario.faults, rng)
-    joint_index = {name: i for i, name in enumerate(world.robot.joints)}
-    derates = [(f.at, np.arange(J) if f.joints == "all" else np.array([joint_index[j] for j in f.joints]), f.factor)
-               for f in scenario.faults if f.kind == "derate"]
-    limps = [(f.at, joint_index[f.joint]) for f in scenario.faults if f.kind == "limp"]
-    locks = [(f.at, joint_index[f.joint], world.lock_eq_ids[i]) for i, f in enumerate(scenario.faults)
-             if f.kind == "lock"]
-    latencies = sorted((f.at, max(int(round(f.delay / ctrl_dt)), 0)) for f in scenario.faults if f.kind == "latency")
-    max_delay = max([k for _, k in latencies], default=0)
-    tau_ring = np.zeros((max_delay + 1, J))
-
     nominal_limits = np.asarray(world.robot.torque_limits, dtype=float)
     limit_now = nominal_limits.copy()
+    faults = compile_faults(scenario.faults, FaultContext(
+        model=m, data=d, world=world, ctrl_dt=ctrl_dt, n_ticks=n_ticks,
+        joint_index={name: i for i, name in enumerate(world.robot.joints)},
+        nominal_limits=nominal_limits, limit_now=limit_now, rng=rng))
     payload_mass = np.array([float(p.spec.mass) if not p.spec.attach_at else 0.0 for p in world.payloads])
     # As built (not as a previous episode on this world may have left them).
     payload_geom_contype = np.full(len(world.payloads), PAYLOAD_CONTYPE, dtype=int)
@@ -428,10 +434,14 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
         watchdog.call_start = 0.0
         return EpisodeResult(trace.__class__({k: v[:0] for k, v in A.items()}), "timeout",
                              _timeout_reason(hung, limits, "in reset()"), 0.0, time.perf_counter() - c0, events)
-    except Exception as exc:  # noqa: BLE001 - a fault of the controller, reported as such
+    except BaseException as exc:  # noqa: BLE001 - SystemExit, KeyboardInterrupt... of the controller: its fault
         watchdog.call_start = 0.0
+        if user.by_user(exc):
+            raise
         return EpisodeResult(trace.__class__({k: v[:0] for k, v in A.items()}), "error",
-                             f"controller raised {type(exc).__name__} in reset(): {exc}", 0.0, 0.0, events)
+                             raised_reason(exc, "in reset()"), 0.0, 0.0, events)
+    if watchdog.active:
+        watchdog.check(time.perf_counter(), "reset()")
     if time.perf_counter() > watchdog.deadline:
         return EpisodeResult(trace.__class__({k: v[:0] for k, v in A.items()}), "timeout",
                              f"episode exceeded the wall-clock limit of {limits.episode_timeout_s:g} s in reset() "
@@ -474,13 +484,8 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                     m.geom_contype[p.geom_id] = payload_geom_contype[i] if visible else 0
                     m.geom_rgba[p.geom_id, 3] = base_rgba_alpha[i] if visible else 0.0
                     payload_mass[i] = mass
-            for at, idx, factor in derates:
-                if t >= at:
-                    limit_now[idx] = nominal_limits[idx] * factor
-            for at, j, eq in locks:
-                if t >= at and not d.eq_active[eq]:
-                    m.eq_data[eq, 0] = d.qpos[jq[j]]
-                    d.eq_active[eq] = 1
+            if k == faults.next_tick:   # faults switching on (derated limits, a lock's constraint...)
+                faults.switch(k)
 
             if has_forces:
                 apply_forces(step)
@@ -507,8 +512,8 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
             R_contact[k] = foot_contact
             if P:
                 R_payload[k] = payload_mass
-            if sensor_faults.active:
-                sensor_faults.apply(obs, t)
+            if faults.observers:
+                faults.observe(obs)
             command[:] = cmd_rows[k]
 
             # The controller.
@@ -523,13 +528,17 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 ctrl_ms[k] = (time.perf_counter() - c0) * 1e3
                 status, reason = "timeout", _timeout_reason(hung, limits, f"at tick {k} (t={t:.3f} s)")
                 break
-            except Exception as exc:  # noqa: BLE001
+            except BaseException as exc:  # noqa: BLE001 - SystemExit, KeyboardInterrupt... of the controller
                 watchdog.call_start = 0.0
+                if user.by_user(exc):
+                    raise
                 status = "timeout" if isinstance(exc, TimeoutError) else "error"   # e.g. an external program's wait
-                reason = f"controller raised {type(exc).__name__} at tick {k} (t={t:.3f} s): {exc}"
+                reason = raised_reason(exc, f"at tick {k} (t={t:.3f} s)")
                 break
             c1 = time.perf_counter()
             ctrl_ms[k] = (c1 - c0) * 1e3
+            if c1 - watchdog.checked_at > watchdog.period_s and watchdog.active:
+                watchdog.check(c1, f"tick {k} (t={t:.3f} s)")
             if c1 - c0 > tick_limit_s:
                 status, reason = "timeout", (f"controller took {c1 - c0:.2f} s at tick {k} (t={t:.3f} s), "
                                              f"over the per-tick limit of {tick_limit_s:g} s")
@@ -543,6 +552,11 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
             except (TypeError, ValueError) as exc:
                 status, reason = "error", f"controller returned a non-numeric value at tick {k} (t={t:.3f} s): {exc}"
                 break
+            except BaseException as exc:  # noqa: BLE001 - the returned object's own code (__array__, __float__)
+                if user.by_user(exc):
+                    raise
+                status, reason = "error", raised_reason(exc, f"converting its torques at tick {k} (t={t:.3f} s)")
+                break
             if tau.shape != (J,):
                 what = "None" if tau.shape == () and math.isnan(float(tau)) else f"torques of shape {tau.shape}"
                 status, reason = "error", (f"controller returned {what} at tick {k} (t={t:.3f} s); "
@@ -553,19 +567,15 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 status, reason = "error", f"controller returned non-finite torques at tick {k} (t={t:.3f} s)"
                 break
 
-            # Latency, limp joints and limits, then hold until the next tick.
-            delay = 0
-            for at, dk in latencies:
-                if t >= at:
-                    delay = dk
-            tau_ring[k % (max_delay + 1)] = tau
-            applied = tau_ring[(k - delay) % (max_delay + 1)] if k >= delay else np.zeros(J)
-            np.minimum(applied, limit_now, out=applied_buf)
+            # Faults on the command (latency), the limits, faults on the applied torque (limp joints),
+            # then hold until the next tick.
+            if faults.commanders:
+                tau = faults.command(k, tau)
+            np.minimum(tau, limit_now, out=applied_buf)
             np.maximum(applied_buf, -limit_now, out=applied_buf)
             applied = applied_buf
-            for at, j in limps:
-                if t >= at:
-                    applied[j] = 0.0
+            if faults.appliers:
+                faults.apply(applied)
             d.ctrl[act_s] = applied
 
             mujoco.mj_step2(m, d)
@@ -624,11 +634,27 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
         _derive_rows(A, n, ctrl_dt, world, m, R_qvel[:n], R_xipos[:n], cmd_rows[:n])
         A["terrain_height"][:] = world.terrain.height_at(A["base_pos"][:, 0], A["base_pos"][:, 1])
     stats = {}
-    if hasattr(controller, "stats"):
-        try:
+    watchdog.call_limit_s = watchdog.tick_limit_s
+    c0 = watchdog.call_start = time.perf_counter()
+    try:
+        if hasattr(controller, "stats"):
             stats = {str(a): float(b) for a, b in dict(controller.stats()).items()}
-        except Exception:  # noqa: BLE001 - optional and informative only
-            stats = {}
+        watchdog.call_start = 0.0
+    except _ControllerHung as hung:
+        watchdog.call_start = 0.0
+        stats = {}
+        if status not in ("error", "timeout"):
+            status, reason = "timeout", _timeout_reason(hung, limits, "in stats()")
+    except Exception:  # noqa: BLE001 - optional and informative only
+        watchdog.call_start = 0.0
+        stats = {}
+    except BaseException as exc:  # noqa: BLE001 - SystemExit, KeyboardInterrupt...: the controller's fault
+        watchdog.call_start = 0.0
+        if user.by_user(exc):
+            raise
+        stats = {}
+        if status not in ("error", "timeout"):
+            status, reason = "error", raised_reason(exc, "in stats()")
     trace.meta.update({
         "nominal_height": float(world.robot.nominal_height),
         "control_dt": ctrl_dt,

@@ -1,8 +1,8 @@
 """Timed events of an episode, compiled once from the scenario into arrays.
 
 Disturbance forces become per-physics-step index ranges with a force and a
-point of application; payload mass schedules become functions of time; faults
-become switch-on times. Random draws (push trains) use the scenario seed, so an
+point of application; payload mass schedules become functions of time; each
+fault becomes a captioned event (its effect is compiled in `bench.sim.faults`). Random draws (push trains) use the scenario seed, so an
 episode is reproducible from (scenario, seed). Each event also yields an
 :class:`Event` record for captions and plots.
 """
@@ -159,22 +159,6 @@ def compile_masses(payloads, duration: float) -> tuple[list[MassSchedule], list[
 
 
 def fault_events(faults, duration: float) -> list[Event]:
-    out = []
-    for f in faults:
-        if f.kind == "derate":
-            joints = "all joints" if f.joints == "all" else ", ".join(f.joints)
-            label = f"torque derated to {f.factor * 100:.0f}% on {joints}"
-        elif f.kind == "lock":
-            label = f"joint {f.joint} locked"
-        elif f.kind == "limp":
-            label = f"joint {f.joint} limp"
-        elif f.kind == "latency":
-            label = f"extra command latency {f.delay * 1000:.0f} ms"
-        elif f.kind == "sensor_noise":
-            label = f"{f.sensor} noise std {f.std:g}" + (f", bias {f.bias:g}" if f.bias else "")
-        elif f.kind == "sensor_freeze":
-            label = f"{f.sensor} frozen"
-        else:
-            label = f.kind
-        out.append(Event(float(f.at), duration, f"fault_{f.kind}", label))
-    return out
+    """One event per fault, from its switch-on to the end, captioned by the kind's ``label()``."""
+    return [Event(float(f.at), duration, f"fault_{f.kind}", f.label() if hasattr(f, "label") else f.kind)
+            for f in faults]

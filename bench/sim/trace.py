@@ -1,7 +1,7 @@
 """The Trace: what an episode recorded, one row per control tick.
 
-Keys and meanings are those of ``contracts.md`` (trace.npz); extra keys are
-allowed and never change meaning. ``meta`` carries the scalars scoring needs
+Keys and meanings are the documented ``trace.npz`` format (README, "What a run
+writes"); extra keys are allowed and never change meaning. ``meta`` carries the scalars scoring needs
 (nominal height, control period, fall time) so that scoring reads only a Trace.
 """
 
@@ -15,7 +15,7 @@ import numpy as np
 
 from bench.fileio import write_atomic
 
-#: Keys promised by contracts.md, in the order they are documented.
+#: Keys the documented trace.npz format promises, in the order they are documented.
 CONTRACT_KEYS = (
     "t", "base_pos", "base_quat", "base_linvel", "base_angvel", "joint_pos", "joint_vel",
     "joint_torque", "foot_pos", "foot_force", "command", "total_mass", "com_pos",

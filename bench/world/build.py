@@ -15,16 +15,13 @@ from pathlib import Path
 import mujoco
 import numpy as np
 
+from bench.faults import WorldContext, group_by_kind
+from bench.fileio import write_atomic
 from bench.robot.locate import resolve_robot
 from bench.robot.manifest import RobotManifest
 from bench.robot.model import load_robot_spec
 from bench.world.payloads import PayloadSpec, add_payload
 from bench.world.terrain import Terrain, build_terrain
-
-
-#: A locked joint's equality constraint: time constant in timesteps (MuJoCo's safe minimum is 2) and impedance.
-LOCK_TIMECONST_STEPS = 2.0
-LOCK_SOLIMP = (0.99, 0.99, 0.001, 0.5, 2.0)
 
 
 @dataclass
@@ -65,16 +62,11 @@ class World:
     root_dof_adr: int
     initial_qpos: np.ndarray
     cameras: dict[str, int] = field(default_factory=dict)
-    lock_eq_ids: dict[int, int] = field(default_factory=dict)  # fault index -> equality id
 
     @property
     def carried_body_ids(self) -> np.ndarray:
         """Robot bodies plus payload bodies: what ``total_mass`` and ``com_pos`` cover."""
         return np.concatenate([self.robot_body_ids, [p.body_id for p in self.payloads]]).astype(int)
-
-
-def _scenario_dir(scenario) -> Path:
-    return Path(scenario.source).resolve().parent if getattr(scenario, "source", None) else Path.cwd()
 
 
 def manifest_for(scenario) -> RobotManifest:
@@ -122,15 +114,10 @@ def build_world(scenario, manifest: RobotManifest | None = None) -> World:
     trunk = spec.body(manifest.trunk)
     payload_specs: list[PayloadSpec] = [add_payload(spec, trunk, p) for p in scenario.payloads]
 
-    # A locked joint is an equality constraint, off until the fault switches it on. It is made as stiff as
-    # MuJoCo allows (time constant two timesteps, impedance 0.99): with the defaults (0.02 s, 0.95) a knee
-    # would yield by degrees under its own motor's full torque.
-    lock_names = {}
-    for i, f in enumerate(getattr(scenario, "faults", ())):
-        if f.kind == "lock":
-            lock_names[i] = f"fault_lock_{i}"
-            spec.add_equality(name=lock_names[i], type=mujoco.mjtEq.mjEQ_JOINT, name1=f.joint, active=False,
-                              solref=[LOCK_TIMECONST_STEPS * float(scenario.timestep), 1.0], solimp=list(LOCK_SOLIMP))
+    # What a fault kind needs in the model (a lock's equality constraint), added by the kind itself.
+    for kind, items in group_by_kind(getattr(scenario, "faults", ())):
+        if kind.build_world is not None:
+            kind.build_world(items, WorldContext(spec=spec, scenario=scenario))
 
     model = spec.compile()
     name2id = lambda objtype, name: mujoco.mj_name2id(model, objtype, name)  # noqa: E731
@@ -174,7 +161,6 @@ def build_world(scenario, manifest: RobotManifest | None = None) -> World:
         initial_qpos=np.zeros(model.nq),
         cameras={n: name2id(OBJ.mjOBJ_CAMERA, n) for n in ("track", "side", "top")},
     )
-    world.lock_eq_ids = {i: name2id(OBJ.mjOBJ_EQUALITY, n) for i, n in lock_names.items()}
     world.initial_qpos = initial_qpos(world, scenario)
     return world
 
@@ -214,7 +200,4 @@ def _nominal_foot_xy(world: World) -> np.ndarray:
 
 def export_mjcf(world: World, path: str | Path) -> None:
     """Write the compiled world as MJCF that loads in MuJoCo on its own."""
-    xml = world.spec.to_xml()
-    tmp = Path(str(path) + ".tmp")
-    tmp.write_text(xml)
-    tmp.replace(path)
+    write_atomic(path, world.spec.to_xml().encode("utf-8"))

@@ -36,9 +36,7 @@ def check_against_robot(scenario) -> list[ScenarioError]:
             errors.append(scenario.error(field, f"robot {manifest.name!r} has no joint {name!r}", hint))
 
     for i, f in enumerate(scenario.faults):
-        if f.kind in ("lock", "limp"):
-            check_joint(f"faults.{i}.{f.kind}.joint", f.joint)
-        elif f.kind == "derate" and f.joints != "all":
-            for j, name in enumerate(f.joints):
-                check_joint(f"faults.{i}.derate.joints.{j}", name)
+        # Each fault kind says which of its fields name joints (bench.faults).
+        for rel, name in (f.joint_refs() if hasattr(f, "joint_refs") else ()):
+            check_joint(".".join(map(str, ("faults", i, f.kind, *rel))), name)
     return errors
