@@ -378,3 +378,14 @@ def test_naming_a_sealed_module_runs_none_of_its_code_in_the_bench_process(stand
     assert factory.sealed_spec == "tamper_pkg.ctrl:Ctrl"
     with pytest.raises(registry.ControllerNotFound, match="cannot find module 'tamper_pkg.nope'"):
         registry.resolve("sealed:tamper_pkg.nope:Ctrl")
+
+
+def test_sealed_flag_is_the_sealed_prefix(tmp_path):
+    env = {**os.environ, "PYTHONPATH": str(REPO)}
+    p = subprocess.run([sys.executable, "-m", "bench", "run", str(STAND_1S), "--sealed", "--controller", "joint-pd",
+                        "--out", str(tmp_path / "out"), "--workers", "1", "--no-plots", "--no-history"],
+                       capture_output=True, text=True, env=env)
+    assert p.returncode in (0, 1), p.stderr
+    result = json.loads(next((tmp_path / "out").glob("*/result.json")).read_text())
+    assert result["controller"] == "sealed:joint-pd"
+    assert result["fingerprint_parts"]["controller"] != ""
