@@ -616,7 +616,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
             z = d.qpos[qa + 2]
             ground = ground_at(d.qpos[qa])
             if fell_contact or z - ground < fall_z:
-                why = "trunk or leg touched the ground" if fell_contact else (
+                why = contacts.fall_parts(m, d) if fell_contact else (
                     f"trunk {z - ground:.3f} m above the ground, under the fall threshold {fall_z:.3f} m")
                 status, reason = "fell", f"fell at t={t:.3f} s: {why}"
                 k += 1
