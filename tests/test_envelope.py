@@ -86,3 +86,30 @@ def test_data_and_picture_are_written(tmp_path):
                          Axis("dir", 0, 360, label="direction, deg", periodic=True), Axis("mag", 0, 100), grid=9,
                          levels=2)
     assert plot_envelope(polar, tmp_path / "polar.png").stat().st_size > 10_000
+
+
+def test_bench_envelope_maps_a_push_direction_and_magnitude(tmp_path):
+    """The command end to end on a standing robot: weak pushes pass in every direction, strong ones fail."""
+    import os
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    repo = Path(__file__).resolve().parents[1]
+    env = {**os.environ, "PYTHONPATH": str(repo)}
+    cmd = [sys.executable, "-m", "bench", "envelope", str(repo / "scenarios/basics/stand-push.yaml"),
+           "--direction-of", "disturbances.0.push.force", "20", "600", "--grid", "5", "--levels", "1",
+           "--controller", "force-qp-l1", "--out", str(tmp_path / "env"), "--workers", "2"]
+    p = subprocess.run(cmd, capture_output=True, text=True, env=env)
+    assert p.returncode == 0, p.stdout + p.stderr
+    data = json.loads((tmp_path / "env/envelope.json").read_text())
+    pts = data["points"]
+    weak = [q for q in pts if q["y"] == 20]
+    strong = [q for q in pts if q["y"] == 600]
+    assert weak and all(q["passed"] for q in weak)        # 2 N s: nothing to recover from
+    assert strong and not any(q["passed"] for q in strong)  # 60 N s on 12 kg: 5 m/s, no stance holds that
+    assert data["x"]["periodic"] and max(q["x"] for q in pts) < 360
+    assert (tmp_path / "env/envelope.png").stat().st_size > 10_000
+    assert len(list((tmp_path / "env/episodes").glob("*/result.json"))) == len(pts)
+    bad = subprocess.run(cmd[:5] + ["--x", "payloads.0.mass", "1", "2"], capture_output=True, text=True, env=env)
+    assert bad.returncode == 2 and "Traceback" not in bad.stderr

@@ -108,3 +108,51 @@ class ScenarioPredicate:
                       "reasons": sorted({r.reason for r in records if r.reason})[:3]}
             out.append(Evaluation(j["rate"], j["verdict"] == "passed", j["trials"], tuple(j["interval"]), detail))
         return out
+
+
+class PlanePredicate(ScenarioPredicate):
+    """``predicate([(x, y), ...]) -> [Evaluation]`` for :func:`bench.search.envelope.map_envelope`: two dotted
+    paths of one scenario set at once, on the same trials (common random numbers) at every point."""
+
+    def __init__(self, scenario, x_path: str, y_path: str, *, vector: bool = False, **kw):
+        super().__init__(scenario, x_path, **kw)
+        self.y_path = y_path
+        self.y_label = y_path.split(".")[-1]
+        self.y_integer = False
+        # vector: x is the direction (deg, about z) and y the magnitude of the horizontal vector at x_path
+        self.vector = vector
+
+    def scenarios_at(self, value) -> list:
+        import math
+
+        from bench.scenario.compose import derive
+        from bench.scenario.ids import format_label_value
+
+        x, y = value
+        if self.vector:
+            a = math.radians(float(x))
+            vec = [round(float(y) * math.cos(a), 9), round(float(y) * math.sin(a), 9), 0.0]
+            suffix = f"dir={format_label_value(float(x))},mag={format_label_value(float(y))}"
+            return [derive(t, {self.path: vec}, suffix) for t in self.trial_scenarios]
+        xv = int(round(x)) if self.integer else float(x)
+        yv = int(round(y)) if self.y_integer else float(y)
+        suffix = f"{self.label}={format_label_value(xv)},{self.y_label}={format_label_value(yv)}"
+        return [derive(t, {self.path: xv, self.y_path: yv}, suffix) for t in self.trial_scenarios]
+
+    def check_plane(self, x_range: tuple[float, float], y_range: tuple[float, float]) -> None:
+        """Every corner must give a valid scenario; detects integer fields. Raises ``ScenarioErrors``."""
+        (x0, x1), (y0, y1) = x_range, y_range
+        if self.vector:
+            for corner in ((x0, y0), (x0, y1), ((x0 + x1) / 2, y1)):
+                self.scenarios_at(corner)
+            return
+        for axis, probe in (("x", ((x0 + x1) * 0.5003, y0)), ("y", (x0, (y0 + y1) * 0.5003))):
+            try:
+                self.scenarios_at(probe)
+            except ScenarioErrors as e:
+                if any("expected an integer" in err.message for err in e.errors):
+                    setattr(self, "integer" if axis == "x" else "y_integer", True)
+                else:
+                    raise
+        for corner in ((x0, y0), (x0, y1), (x1, y0), (x1, y1)):
+            self.scenarios_at(corner)
