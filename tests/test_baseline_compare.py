@@ -29,7 +29,10 @@ def result(sid="stand", status="passed", **metrics) -> dict:
             "controller": "joint-pd", "seed": 0, "content_hash": "abc", "source": f"{sid}.yaml",
             "criteria": [{"name": "height_error_max", "value": base["height_error_max"], "limit": 0.08,
                           "passed": True, "first_violation_s": None}],
-            "metrics": base}
+            "metrics": base,
+            # the rest of a result.json (readers take results as whole run records)
+            "passed": status == "passed", "sim_time_s": 1.0, "wall_time_s": 1.0, "realtime_factor": 1.0,
+            "controller_ms": {"p50": 0.0, "p99": 0.0, "max": 0.0}, "bench_version": "0", "mujoco_version": "0"}
 
 
 def write_results(folder: Path, results: list[dict]) -> Path:

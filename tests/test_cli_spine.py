@@ -79,12 +79,14 @@ def test_check_reports_unknown_key_with_did_you_mean(write_scenario, capsys):
     assert f"{path}:2:1:" in err and "duration" in err
 
 
-def test_unknown_controller_is_an_error_result_not_a_crash(tmp_path, write_scenario, capsys):
+def test_unknown_controller_is_invalid_input_not_a_crash(tmp_path, write_scenario, capsys):
+    # invalid input: exit 2 before anything runs, with the names that exist
     path = write_scenario(GOOD.format(name="x", limit=0.05))
     rc = main(["run", str(path), "--controller", "no-such-controller", "--out", str(tmp_path / "r")])
-    assert rc == 1
-    result = json.loads((tmp_path / "r" / "x" / "result.json").read_text())
-    assert result["status"] == "error" and "no-such-controller" in result["reason"]
+    assert rc == 2
+    assert not (tmp_path / "r").exists()
+    err = capsys.readouterr().err
+    assert "unknown controller 'no-such-controller'" in err and "force-qp-l1" in err
 
 
 def test_list_and_export(tmp_path, write_scenario, capsys):

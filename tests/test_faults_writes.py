@@ -38,7 +38,7 @@ def _check_whole(out: Path) -> set[str]:
     complete = set()
     for entry in out.iterdir():
         if entry.is_file():
-            assert entry.name == "summary.json" or _is_temp(entry.name), entry
+            assert entry.name in ("summary.json", "summary.md") or _is_temp(entry.name), entry
             if entry.name == "summary.json":
                 json.loads(entry.read_text())
             continue

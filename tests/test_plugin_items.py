@@ -11,6 +11,7 @@ import pytest
 # Imported here, before any in-process pytest run: pytester drops the modules a run imported when it
 # ends, and numpy and MuJoCo cannot be loaded twice in one process.
 import bench.controllers.simple  # noqa: F401
+import bench.controllers.stacks  # noqa: F401 - the controller check imports it
 import bench.execute.job  # noqa: F401
 import bench.report.history  # noqa: F401
 import bench.scenario  # noqa: F401
@@ -130,10 +131,13 @@ def test_bad_scenario_is_a_located_collection_error(project):
     assert "Traceback" not in text and res.ret != 0
 
 
-def test_unknown_controller_fails_items_with_the_reason(project):
+def test_unknown_controller_is_a_usage_error_before_anything_runs(project):
+    # as bench run: an unknown controller is invalid input (pytest's usage error), not N failed items
     res = project.runpytest("-q", "--bench-controller", "no-such-ctrl", "-k", "tight")
-    res.assert_outcomes(failed=1, deselected=3)
-    assert "tight: error: controller 'no-such-ctrl' could not be made: unknown controller" in res.stdout.str()
+    assert res.ret == pytest.ExitCode.USAGE_ERROR
+    err = res.stderr.str()
+    assert "unknown controller 'no-such-ctrl'" in err and "force-qp-l1" in err and "joint-pd" in err
+    assert not (project.path / "out").exists()
 
 
 def test_explicit_scenario_file_is_collected_without_configuration(pytester):

@@ -26,8 +26,16 @@ def test_wilson_textbook_value():
     assert (round(lo, 3), round(hi, 3)) == (0.64, 0.948)
 
 
+def _result(scenario: str, status: str) -> dict:
+    """A whole result.json mapping (judge reads results as run records)."""
+    return {"scenario": scenario, "source": "s.yaml", "controller": "zero", "seed": 0, "status": status,
+            "passed": status == "passed", "reason": None, "sim_time_s": 1.0, "wall_time_s": 1.0,
+            "realtime_factor": 1.0, "controller_ms": {"p50": 0.0, "p99": 0.0, "max": 0.0}, "criteria": [],
+            "metrics": {}, "bench_version": "0", "mujoco_version": "0"}
+
+
 def _results(k: int, n: int) -> list[dict]:
-    return [{"scenario": f"s[trial={i}]", "status": "passed" if i < k else "failed"} for i in range(n)]
+    return [_result(f"s[trial={i}]", "passed" if i < k else "failed") for i in range(n)]
 
 
 def test_verdict_is_decided_on_the_lower_bound():
@@ -39,7 +47,7 @@ def test_verdict_is_decided_on_the_lower_bound():
     assert judge(_results(20, 20), None)["verdict"] == "passed"  # no pass_rate_min: every trial must pass
     assert judge(_results(19, 20), None)["verdict"] == "failed"
     assert judge(_results(19, 20), 1.0)["verdict"] == "failed"
-    errs = judge([{"scenario": "a", "status": "error"}, {"scenario": "b", "status": "passed"}], 0.1)
+    errs = judge([_result("a", "error"), _result("b", "passed")], 0.1)
     assert errs["errors"] == ["a"] and errs["failing"] == ["a"]
 
 

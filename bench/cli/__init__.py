@@ -50,9 +50,11 @@ def main(argv: list[str] | None = None) -> int:
     if not getattr(args, "func", None):
         parser.print_help()
         return EXIT_INVALID
+    from bench.run.errors import InvalidInput
+
     try:
         return int(args.func(args) or 0)
-    except UsageError as exc:
+    except (UsageError, InvalidInput) as exc:
         print(f"bench {args.command}: {exc}", file=sys.stderr)
         return EXIT_INVALID
     except KeyboardInterrupt:

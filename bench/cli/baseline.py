@@ -35,10 +35,13 @@ def save(args) -> int:
         return 2
     baseline = make_baseline(results, git=git_state("."), keep=keep)
     save_baseline(out, baseline)
-    controllers = sorted({str(r.get("controller")) for r in results})
+    from bench.report.record import as_record
+
+    records = [as_record(r) for r in results]     # read_results has checked each as a run record
+    controllers = sorted({r.controller for r in records})
     statuses: dict[str, int] = {}
-    for r in results:
-        statuses[r["status"]] = statuses.get(r["status"], 0) + 1
+    for r in records:
+        statuses[r.status] = statuses.get(r.status, 0) + 1
     kept = ""
     if keep is not None:
         n = len(baseline["tolerances"]) + sum(bool(e.get("tolerances")) for e in baseline["scenarios"].values())

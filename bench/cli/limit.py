@@ -17,7 +17,8 @@ import time
 from pathlib import Path
 
 from bench.cli.common import load_or_report
-from bench.cli.run import DEFAULT_CONTROLLER, add_execution_options
+from bench.cli.run import add_execution_options, executor_options
+from bench.run.plan import DEFAULT_CONTROLLER
 
 ORDER = 15
 
@@ -85,8 +86,9 @@ def run(args) -> int:
     import bench
     from bench.cli import UsageError
     from bench.errors import ScenarioErrors
-    from bench.execute.executors import ExecutorError, make_executor
     from bench.report.results import write_json
+    from bench.run.execute import open_executor
+    from bench.run.plan import check_controller
     from bench.search.limit import find_limit
     from bench.search.plot import plot_curve
     from bench.search.scenario import ScenarioPredicate
@@ -103,10 +105,8 @@ def run(args) -> int:
     if scenarios is None:
         return 2
     sc = _pick(scenarios, args.only, args.scenario)
-    try:
-        executor = make_executor(args.workers, args.cluster, in_process=getattr(args, "in_process", False))
-    except ExecutorError as exc:
-        raise UsageError(str(exc)) from None
+    check_controller(args.controller)          # invalid input: exit 2 before anything runs
+    executor = open_executor(args.workers, args.cluster, **executor_options(args))
     out = Path(args.out)
     t0 = time.perf_counter()
     try:

@@ -26,9 +26,15 @@ def register(sub) -> None:
 def run(args) -> int:
     from bench.report.html import ReportError, write_report
 
+    plotter = None
+    if not args.no_plots:
+        try:
+            from bench.render.plots import plot_result as plotter
+        except Exception:  # noqa: BLE001 - the page says the plots are missing
+            plotter = None
     try:
         out = write_report(args.results_dir, args.output, embed_videos=args.embed_videos,
-                           make_plots=not args.no_plots)
+                           make_plots=not args.no_plots, plotter=plotter)
     except ReportError as exc:
         print(f"bench report: {exc}", file=sys.stderr)
         return 2

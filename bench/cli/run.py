@@ -5,10 +5,11 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from bench.cli.common import load_or_report, print_table
+from bench.cli.common import load_or_report
+from bench.report.tables import RESULT_HEADER, deciding_text, print_table, print_trials, result_rows  # noqa: F401
+from bench.run.plan import DEFAULT_CONTROLLER
 
 ORDER = 10
-DEFAULT_CONTROLLER = "force-qp-l1"
 
 
 def register(sub) -> None:
@@ -81,30 +82,10 @@ def add_execution_options(p) -> None:
                         "connects to a running scheduler")
 
 
-def deciding_text(result: dict) -> str:
-    crits = result.get("criteria") or []
-    failed = [c for c in crits if not c["passed"]]
-    c = failed[0] if failed else (next((c for c in crits if c["name"] != "no_fall"), None) or (crits[0] if crits else None))
-    if result["status"] in ("error", "timeout"):
-        return (result.get("reason") or "")[:70]
-    if c is None:
-        return ""
-    if c["name"] == "no_fall":
-        return "no_fall" + ("" if c["passed"] else f" (fell at {c['first_violation_s']:.2f} s)")
-    val = "n/a" if c["value"] is None else f"{c['value']:.3g}"
-    lim = "" if c["limit"] is None else f" / {c['limit']:.3g}"
-    return f"{c['name']} {val}{lim}"
-
-
 def run(args) -> int:
-    from bench.cli import UsageError
-    from bench.execute import trials as trials_mod
-    from bench.execute.executors import ExecutorError, make_executor
-    from bench.execute.job import Job, run_job
-    from bench.execute.outcomes import error_outcome
-    from bench.execute.progress import Progress
-    from bench.execute.schedule import longest_first
-    from bench.report.results import write_outcome, write_summary
+    from bench.run import execute as run_exec
+    from bench.run import sinks as run_sinks
+    from bench.run.plan import check_out_folders, make_plan, resume, resume_lines
     from bench.sim.episode import EpisodeLimits
 
     if getattr(args, "video", "none") != "none":
@@ -113,52 +94,51 @@ def run(args) -> int:
     scenarios = load_or_report(args.paths, args.root)
     if scenarios is None:
         return 2
-    episodes, seeds, groups = trials_mod.plan(scenarios, args.seed)
-    if args.only:
-        all_ids = [e.id for e in episodes]
-        episodes, seeds, groups, unknown = trials_mod.select(episodes, seeds, groups, args.only)
-        if unknown:
-            raise UsageError(f"--only: no scenario or trial with id {', '.join(map(repr, unknown))} in "
-                             f"{' '.join(args.paths)}" + _close_ids(unknown, all_ids))
     limits = EpisodeLimits(tick_timeout_s=args.tick_timeout, episode_timeout_s=args.episode_timeout)
-    jobs = [Job(sc, args.controller, seed, limits) for sc, seed in zip(episodes, seeds)]
-    try:
-        executor = make_executor(getattr(args, "workers", None), getattr(args, "cluster", None),
-                                 in_process=getattr(args, "in_process", False))
-    except ExecutorError as exc:
-        raise UsageError(str(exc)) from None
+    plan = make_plan(scenarios, controller=args.controller, limits=limits, seed=args.seed, only=args.only,
+                     where=" ".join(args.paths))
     out = Path(args.out)
-    out.mkdir(parents=True, exist_ok=True)
-    trial_of = {i: g.scenario for g in groups for i in g.indices}
-    results: list[dict | None] = [None] * len(jobs)
-    todo = list(range(len(jobs)))
-    if getattr(args, "resume", False):
-        todo = _resume(out, episodes, jobs, results)
-    # submission order only (longest first keeps workers busy to the end); results go back by index
-    order = longest_first(jobs, todo) if executor.workers > 1 else todo
-    progress = Progress(len(todo))
+    check_out_folders(plan, out)
+    executor = run_exec.open_executor(getattr(args, "workers", None), getattr(args, "cluster", None),
+                                      **executor_options(args))
+    results: dict[int, dict] = {}
+    todo = [e.index for e in plan.episodes]
     try:
-        for j, outcome in executor.map(run_job, [jobs[i] for i in order], on_error=error_outcome):
-            i = order[j]
-            if i in trial_of:
-                outcome.result["trial_of"] = trial_of[i]
-            write_outcome(out, episodes[i].slug, outcome)
-            results[i] = outcome.result
-            progress.update(passed=outcome.result["status"] == "passed")
+        try:
+            out.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            from bench.run.errors import InvalidInput
+
+            raise InvalidInput(f"--out {out}: cannot create the results folder: {exc.strerror or exc}") from None
+        if getattr(args, "resume", False):
+            resumed = resume(plan, out)
+            results.update(resumed.results)
+            todo = resumed.todo
+            for line in resume_lines(plan, resumed, out):
+                print(line, file=sys.stderr)
+        sinks: list = [run_sinks.ResultFiles(out)]
+        if not args.no_history:
+            from bench.report.history import default_path
+
+            path = Path(args.history) if args.history else default_path(out)
+            sinks.append(run_sinks.HistorySink(path, source="bench run", cwd=Path.cwd()))
+        progress = run_sinks.ProgressSink(len(todo))
+        sinks.append(progress)
+        try:
+            run_exec.reuse(sinks, plan, results)
+            results.update(run_exec.execute(plan, todo, executor, sinks))
+        finally:
+            run_exec.close_sinks(sinks)
     finally:
-        progress.close()
         executor.close()
-    entries = [(sc.slug, r) for sc, r in zip(episodes, results)]
-    trial_summaries = trials_mod.group_summaries(groups, results)
-    summary = write_summary(out, entries, trial_summaries)
-    if not args.no_history:
-        _record_history(args, out, [results[i] for i in todo])   # resumed results are in it already
-    rows = [[sc.id, r["status"], deciding_text(r), f"{r['realtime_factor']:.1f}x"] for sc, r in zip(episodes, results)]
-    print_table(rows, ["scenario", "status", "deciding criterion (value / limit)", "realtime"])
+    summary, trial_summaries = run_sinks.write_run_summary(out, plan, results)
+    ordered = [results[e.index] for e in plan.episodes]
+    print_table(result_rows(ordered), RESULT_HEADER)
     if trial_summaries:
         print()
         print_trials(trial_summaries)
-    _media(args, out, episodes, results)   # plots and videos; the count line below stays the last line
+    _media(args, out, plan, results)   # plots and videos; the count line below stays the last line
+    run_sinks.write_run_markdown(out, plan, results, summary, controller=plan.controller_name)
     print(f"results in {out}/")
     line = f"{summary['passed']} passed, {summary['failed']} failed"
     if summary["errors"]:
@@ -167,86 +147,27 @@ def run(args) -> int:
         ok_groups = sum(t["verdict"] == "passed" for t in trial_summaries)
         line += f" (episodes); {ok_groups} of {len(trial_summaries)} trial scenarios passed"
     print(line)
-    in_group = set(trial_of)
-    plain_ok = all(r["status"] == "passed" for i, r in enumerate(results) if i not in in_group)
+    plain_ok = all(results[e.index]["status"] == "passed" for e in plan.episodes if e.trial_of is None)
     groups_ok = all(t["verdict"] == "passed" for t in trial_summaries)
     return 0 if plain_ok and groups_ok else 1
 
 
-def _resume(out: Path, episodes, jobs, results: list) -> list[int]:
-    """Fill ``results`` with the complete results already in ``out``; return the indices still to run."""
-    from bench.report.results import complete_result, remove_temp_files
-
-    remove_temp_files(out)
-    todo, redo = [], 0
-    for i, (sc, job) in enumerate(zip(episodes, jobs)):
-        remove_temp_files(out / sc.slug)
-        seed = int(sc.seed if job.seed is None else job.seed)
-        controller = job.controller if isinstance(job.controller, str) else None
-        result, why = complete_result(out, sc.slug, scenario_id=sc.id, seed=seed, controller=controller,
-                                      content_hash=getattr(sc, "content_hash", None) or None)
-        if result is None:
-            todo.append(i)
-            redo += why != "no result.json"
-        else:
-            results[i] = result
-    print(f"resume: {len(jobs) - len(todo)} of {len(jobs)} results complete in {out}/, running {len(todo)}"
-          + (f" ({redo} of them incomplete or for other settings)" if redo else ""), file=sys.stderr)
-    return todo
+def executor_options(args) -> dict:
+    """Options of the execution back end beyond --workers/--cluster (``--in-process``), only when given."""
+    return {"in_process": True} if getattr(args, "in_process", False) else {}
 
 
-def _media(args, out: Path, episodes, results) -> None:
+def _media(args, out: Path, plan, results) -> None:
     """Plots and videos: never a traceback, never a different exit code."""
+    from bench.run.sinks import media_after_run
+
     try:
         from bench.cli.render import options_from
-        from bench.render.postrun import after_run
 
         video = getattr(args, "video", "none")
         opts = options_from(args) if video != "none" else None
-        after_run(out, [(sc, sc.slug, r) for sc, r in zip(episodes, results)], video=video,
-                  video_dir=getattr(args, "video_dir", "videos"), plots=getattr(args, "plots", True), opts=opts)
     except Exception as exc:  # noqa: BLE001 - the results are written; media are extras
         print(f"plots/video: skipped: {type(exc).__name__}: {exc}")
-
-
-def _close_ids(unknown: list[str], ids: list[str]) -> str:
-    import difflib
-
-    close = difflib.get_close_matches(unknown[0], ids, n=3, cutoff=0.5)
-    note = " (a trial's id is the scenario id plus [trial=K], K from 0)" if any("[trial=" in i for i in ids) else ""
-    if close:
-        return f"; did you mean {', '.join(close)}?{note}"
-    return f"; ids here: {', '.join(ids[:5])}{', ...' if len(ids) > 5 else ''}{note}"
-
-
-def print_trials(trial_summaries: list[dict], file=None) -> None:
-    """The trials table: rate, 95 % Wilson interval, required rate, verdict and failing trial ids."""
-    rows = []
-    for t in trial_summaries:
-        lo, hi = t["interval"]
-        req = "all" if t["required"] is None else f"{t['required']:g}"
-        failing = ", ".join(t["failing"][:4]) + (f", +{len(t['failing']) - 4} more" if len(t["failing"]) > 4 else "")
-        count = f"{t['passed']}/{t['trials']}"
-        if t["trials"] < t.get("declared_trials", t["trials"]):
-            count += f" ({t['trials']} of {t['declared_trials']} selected)"
-        rows.append([t["scenario"], count, f"{t['rate']:.2f}", f"[{lo:.2f}, {hi:.2f}]",
-                     req, t["verdict"], failing or "-"])
-    print("trials (95 % Wilson interval of the pass rate; pass_rate_min is checked against its lower bound)",
-          file=file)
-    print_table(rows, ["scenario", "passed", "rate", "95 % interval", "required", "verdict", "failing trials"],
-                file=file)
-    for t in trial_summaries:
-        if t["trials"] < t.get("trials_needed", 0) and t["trials"] >= t.get("declared_trials", 0):
-            print(f"note: {t['scenario']}: {t['trials']} trials cannot show a pass rate of {t['required']:g} even "
-                  f"if all pass (the lower bound is at most {t['trials'] / (t['trials'] + 1.959963984540054 ** 2):.2f});"
-                  f" it needs at least {t['trials_needed']} trials", file=file)
-
-
-def _record_history(args, out: Path, results: list[dict]) -> None:
-    from bench.report.history import default_path, record_results
-
-    path = Path(args.history) if args.history else default_path(out)
-    try:
-        record_results(path, results, source="bench run", cwd=Path.cwd())
-    except Exception as exc:  # noqa: BLE001 - the run's own verdicts stand; say why history is missing
-        print(f"warning: history not recorded in {path}: {type(exc).__name__}: {exc}", file=sys.stderr)
+        return
+    media_after_run(out, plan, results, video=video, video_dir=getattr(args, "video_dir", "videos"),
+                    plots=getattr(args, "plots", True), opts=opts)

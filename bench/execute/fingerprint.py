@@ -27,7 +27,9 @@ def is_timing_metric(name: str) -> bool:
 
 def result_metrics(result: dict) -> dict[str, float]:
     """The metrics of a result that must not depend on the executor."""
-    return {k: v for k, v in (result.get("metrics") or {}).items() if not is_timing_metric(k)}
+    from bench.report.record import as_record
+
+    return {k: v for k, v in as_record(result).metrics.items() if not is_timing_metric(k)}
 
 
 def trace_digest(trace) -> str:
@@ -48,14 +50,16 @@ def trace_digest(trace) -> str:
 
 def outcome_fingerprint(outcome) -> dict:
     """Status, reason, criteria values, non-timing metrics and the trace digest of one outcome."""
-    r = outcome.result
-    criteria = [(c["name"], c["value"], c["limit"], c["passed"], c["first_violation_s"])
-                for c in r.get("criteria") or [] if not is_timing_metric(c["name"])]
+    from bench.report.record import as_record
+
+    r = as_record(outcome.result)
+    criteria = [(c.name, c.value, c.limit, c.passed, c.first_violation_s)
+                for c in r.criteria if not is_timing_metric(c.name)]
     return {
-        "scenario": r["scenario"],
-        "status": r["status"],
-        "reason": r["reason"],
-        "sim_time_s": r["sim_time_s"],
+        "scenario": r.scenario,
+        "status": r.status,
+        "reason": r.reason,
+        "sim_time_s": r.sim_time_s,
         "criteria": criteria,
         "metrics": result_metrics(r),
         "trace": trace_digest(outcome.trace),

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import time
 import traceback
+import uuid
 from dataclasses import dataclass, field
 
 import mujoco
@@ -18,6 +19,7 @@ import numpy as np
 
 import bench
 from bench.controllers import registry
+from bench.report.record import ControllerTiming, CriterionRecord, DecidingCriterion, RunRecord
 from bench.report.results import trace_digest
 from bench.robot.model import NominalRobot
 from bench.scoring.verdict import score
@@ -42,27 +44,18 @@ class Outcome:
     events: list = field(default_factory=list)
 
 
+def base_record(scenario, controller_name: str, seed: int, reason: str | None = None) -> RunRecord:
+    """An ``error`` record of ``scenario`` that no episode has filled in yet (a fresh ``result_uid``)."""
+    return RunRecord(
+        scenario=scenario.id, source=str(scenario.source), controller=controller_name, seed=int(seed),
+        status="error", passed=False, reason=reason, sim_time_s=0.0, wall_time_s=0.0, realtime_factor=0.0,
+        controller_ms=ControllerTiming(), criteria=(), metrics={}, bench_version=bench.__version__,
+        mujoco_version=mujoco.__version__, content_hash=getattr(scenario, "content_hash", "") or "",
+        tags=tuple(getattr(scenario, "tags", []) or []), events=(), result_uid=uuid.uuid4().hex)
+
+
 def _base_result(scenario, controller_name: str, seed: int) -> dict:
-    return {
-        "scenario": scenario.id,
-        "source": str(scenario.source),
-        "controller": controller_name,
-        "seed": int(seed),
-        "status": "error",
-        "passed": False,
-        "reason": None,
-        "sim_time_s": 0.0,
-        "wall_time_s": 0.0,
-        "realtime_factor": 0.0,
-        "controller_ms": {"p50": 0.0, "p99": 0.0, "max": 0.0},
-        "criteria": [],
-        "metrics": {},
-        "bench_version": bench.__version__,
-        "mujoco_version": mujoco.__version__,
-        "content_hash": getattr(scenario, "content_hash", ""),
-        "tags": list(getattr(scenario, "tags", []) or []),
-        "events": [],
-    }
+    return base_record(scenario, controller_name, seed).to_json()
 
 
 def run_job(job: Job) -> Outcome:
@@ -77,54 +70,57 @@ def _run_job(job: Job, user: UserInterrupts) -> Outcome:
     sc = job.scenario
     seed = int(sc.seed if job.seed is None else job.seed)
     name = job.controller if isinstance(job.controller, str) else getattr(job.controller, "name", "custom")
-    result = _base_result(sc, str(name), seed)
+    record = base_record(sc, str(name), seed)
     t0 = time.perf_counter()
     try:
         cname, controller = registry.make(job.controller)
-        result["controller"] = str(cname)
+        record = record.replace(controller=str(cname))
     except BaseException as exc:  # noqa: BLE001 - SystemExit from a controller's module or constructor too
         if user.by_user(exc):
             raise
         why = str(exc) if isinstance(exc, Exception) else raised_reason(exc, "while it was made")
-        result["reason"] = f"controller {name!r} could not be made: {why}"
-        return Outcome(result, None)
+        return Outcome(record.replace(reason=f"controller {name!r} could not be made: {why}").to_json(), None)
     try:
         manifest = manifest_for(sc)
         world = build_world(sc, manifest)
         robot = NominalRobot(manifest)
     except Exception as exc:  # noqa: BLE001
-        result["reason"] = f"world could not be built: {type(exc).__name__}: {exc}"
-        result["wall_time_s"] = time.perf_counter() - t0
-        return Outcome(result, None)
+        record = record.replace(reason=f"world could not be built: {type(exc).__name__}: {exc}",
+                                wall_time_s=time.perf_counter() - t0)
+        return Outcome(record.to_json(), None)
     try:
         ep = run_episode(world, sc, controller, robot, seed=seed, limits=job.limits)
     except BaseException as exc:  # noqa: BLE001 - a bench bug must still not unwind the run
         if user.by_user(exc):
             raise
-        result["reason"] = f"episode failed: {type(exc).__name__}: {exc}"
-        result["traceback"] = traceback.format_exc(limit=6)
-        result["wall_time_s"] = time.perf_counter() - t0
-        return Outcome(result, None)
+        record = record.replace(reason=f"episode failed: {type(exc).__name__}: {exc}",
+                                traceback=traceback.format_exc(limit=6), wall_time_s=time.perf_counter() - t0)
+        return Outcome(record.to_json(), None)
     verdict = score(ep.trace, dict(sc.criteria), episode_status=ep.status, episode_reason=ep.reason,
                     score_from=sc.score_from_s, controller_stats=ep.controller_stats)
     ms = ep.trace["controller_ms"] if len(ep.trace) else np.zeros(1)
-    result.update({
-        "status": verdict.status,
-        "passed": verdict.passed,
-        "reason": verdict.reason,
-        "sim_time_s": ep.sim_time_s,
-        "wall_time_s": ep.wall_time_s,
-        "realtime_factor": ep.sim_time_s / ep.wall_time_s if ep.wall_time_s > 0 else 0.0,
-        "controller_ms": {"p50": float(np.percentile(ms, 50)), "p99": float(np.percentile(ms, 99)),
-                          "max": float(ms.max())},
-        "criteria": [c.to_dict() for c in verdict.criteria],
-        "metrics": verdict.metrics,
-        "events": [e.to_dict() for e in ep.events],
-        "episode_status": ep.status,
-        "score_from_s": sc.score_from_s,
+    criteria = tuple(CriterionRecord(c.name, c.value, c.limit, c.passed, c.first_violation_s,
+                                     verdict.margins.get(c.name)) for c in verdict.criteria)
+    deciding = None
+    if verdict.deciding is not None:
+        deciding = DecidingCriterion(**verdict.deciding.to_dict())
+    record = record.replace(
+        status=verdict.status,
+        reason=verdict.reason,
+        sim_time_s=ep.sim_time_s,
+        wall_time_s=ep.wall_time_s,
+        realtime_factor=ep.sim_time_s / ep.wall_time_s if ep.wall_time_s > 0 else 0.0,
+        controller_ms=ControllerTiming(float(np.percentile(ms, 50)), float(np.percentile(ms, 99)), float(ms.max())),
+        criteria=criteria,
+        metrics=verdict.metrics,
+        events=tuple(e.to_dict() for e in ep.events),
+        episode_status=ep.status,
+        score_from_s=sc.score_from_s,
         # identical for the same scenario, seed and controller, on any run and in any process
-        "trace_sha256": trace_digest(ep.trace.arrays),
-        "mujoco_warnings": list(getattr(ep, "mujoco_warnings", []) or []),
-        "watchdog_restored": list(getattr(ep, "watchdog_restored", []) or []),
-    })
-    return Outcome(result, ep.trace, ep.events)
+        trace_sha256=trace_digest(ep.trace.arrays),
+        mujoco_warnings=tuple(getattr(ep, "mujoco_warnings", []) or []),
+        watchdog_restored=(None if getattr(ep, "watchdog_restored", None) is None
+                           else tuple(ep.watchdog_restored)),
+        deciding=deciding,
+    )
+    return Outcome(record.to_json(), ep.trace, ep.events)

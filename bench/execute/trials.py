@@ -57,8 +57,11 @@ class TrialGroup:
 
 def judge(results: list[dict], required: float | None) -> dict:
     """Rate, Wilson interval and verdict of a list of trial results (any status not `passed` fails)."""
-    n = len(results)
-    k = sum(1 for r in results if r["status"] == "passed")
+    from bench.report.record import as_record
+
+    records = [as_record(r) for r in results]
+    n = len(records)
+    k = sum(1 for r in records if r.passed)
     lo, hi = wilson_interval(k, n)
     if required is None or required >= 1.0:
         ok = n > 0 and k == n
@@ -75,8 +78,8 @@ def judge(results: list[dict], required: float | None) -> dict:
         "required": required,
         "decided_on": decided_on,
         "verdict": "passed" if ok else "failed",
-        "failing": [r["scenario"] for r in results if r["status"] != "passed"],
-        "errors": [r["scenario"] for r in results if r["status"] in ("error", "timeout")],
+        "failing": [r.scenario for r in records if not r.passed],
+        "errors": [r.scenario for r in records if r.is_error],
     }
 
 

@@ -34,7 +34,7 @@ def render_compare(a_dir: str | Path, b_dir: str | Path, out_dir: str | Path = "
     if a.scenario_id != b.scenario_id:
         raise RenderInputError(f"--compare needs two results of the same scenario: {a.dir} is "
                                f"{a.scenario_id!r}, {b.dir} is {b.scenario_id!r}")
-    ha, hb = a.result.get("content_hash"), b.result.get("content_hash")
+    ha, hb = (r.record.content_hash if r.record is not None else r.result.get("content_hash") for r in (a, b))
     if ha and hb and ha != hb:
         raise RenderInputError(f"--compare: {a.dir} and {b.dir} ran different versions of scenario "
                                f"{a.scenario_id!r} (content_hash differs); re-run both from the same file")
@@ -45,8 +45,7 @@ def render_compare(a_dir: str | Path, b_dir: str | Path, out_dir: str | Path = "
         for rec in (a, b):
             views.append(EpisodeView(rec, opts, scenario, roots, title=rec.scenario_id))
         bars = [label_bar(w, bar_h, f"{v.rec.controller}: {v.rec.status.upper()}"
-                          + (f" - {v.rec.result.get('reason')}" if v.rec.result.get("reason") else ""),
-                          v.rec.status) for v in views]
+                          + (f" - {_reason(v.rec)}" if _reason(v.rec) else ""), v.rec.status) for v in views]
         t0 = min(float(v.t[0]) for v in views)
         t1 = max(v.t_last for v in views)
         step_rows = []
@@ -67,7 +66,7 @@ def render_compare(a_dir: str | Path, b_dir: str | Path, out_dir: str | Path = "
                     ended = float(t) > v.t_last + 1e-9
                     if ended and held[i]:
                         continue
-                    how = v.rec.result.get("episode_status", v.rec.status)
+                    how = (v.rec.record.episode_status if v.rec.record is not None else None) or v.rec.status
                     note = f"episode ended at {v.t_last:.2f} s ({how})" if ended else ""
                     panels[i] = v.frame(int(step_rows[i][j]), float(t), opts.slowmo, note=note)
                     held[i] = ended
@@ -87,3 +86,8 @@ def render_compare(a_dir: str | Path, b_dir: str | Path, out_dir: str | Path = "
     finally:
         for v in views:
             v.close()
+
+
+def _reason(rec) -> str | None:
+    record = rec.record
+    return record.reason if record is not None else rec.result.get("reason")

@@ -27,7 +27,12 @@ FOOT_COLOURS = ("#1f77b4", "#ff7f0e", "#2ca02c", "#9467bd")
 
 
 def _criteria(result: dict) -> dict[str, dict]:
-    return {c["name"]: c for c in result.get("criteria") or []}
+    from bench.report.record import RecordError, RunRecord
+
+    try:
+        return {c.name: c.to_json() for c in RunRecord.from_json(result).criteria}
+    except RecordError:   # a partial file is still drawn, with what it has
+        return {c["name"]: c for c in result.get("criteria") or [] if isinstance(c, dict) and "name" in c}
 
 
 def _limit(crit: dict, name: str) -> float | None:

@@ -68,7 +68,7 @@ def after_run(out_dir: str | Path, entries, video: str = "none", video_dir: str 
         return made
     opts = opts or VideoOptions()
     for sc, slug, result in entries:
-        if video == "failed" and result.get("status") == "passed":
+        if video == "failed" and _status(result) == "passed":
             continue
         d = out_dir / slug
         if not (d / "trace.npz").is_file():
@@ -86,3 +86,10 @@ def after_run(out_dir: str | Path, entries, video: str = "none", video_dir: str 
     if made["videos"]:
         print(f"videos: {made['videos']} in {video_dir}/", file=file)
     return made
+
+
+def _status(result) -> str | None:
+    """The status of a result (a run record or a result.json mapping)."""
+    from bench.report.record import RunRecord
+
+    return result.status if isinstance(result, RunRecord) else result.get("status")

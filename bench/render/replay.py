@@ -40,16 +40,29 @@ class Recording:
     trace: Trace | None
 
     @property
+    def record(self):
+        """The result as a run record, or None when the file is not a whole one (it can still be drawn)."""
+        from bench.report.record import RecordError, RunRecord
+
+        try:
+            return RunRecord.from_json(self.result)
+        except RecordError:
+            return None
+
+    @property
     def scenario_id(self) -> str:
-        return str(self.result.get("scenario", self.dir.name))
+        rec = self.record
+        return rec.scenario if rec is not None else str(self.result.get("scenario", self.dir.name))
 
     @property
     def controller(self) -> str:
-        return str(self.result.get("controller", "?"))
+        rec = self.record
+        return rec.controller if rec is not None else str(self.result.get("controller", "?"))
 
     @property
     def status(self) -> str:
-        return str(self.result.get("status", "?"))
+        rec = self.record
+        return rec.status if rec is not None else str(self.result.get("status", "?"))
 
 
 def load_recording(result_dir: str | Path, need_trace: bool = True) -> Recording:

@@ -135,18 +135,28 @@ def key_metric(result: dict, trace, score_from: float) -> KeyMetric:
     A = trace.arrays
     series["velocity_error"] = np.linalg.norm(series["v_heading"] - A["command"][:, :2], axis=1)
     series["yaw_rate_error"] = series["yaw_rate"] - A["command"][:, 2]
-    crits = [c for c in result.get("criteria") or [] if c.get("name") in _LIVE]
-    failed = [c for c in crits if not c.get("passed")]
-    c = (failed or crits or [None])[0]
-    name = c["name"] if c else "height_error_max"
+    rec = _record(result)
+    live = [c for c in rec.criteria if c.name in _LIVE] if rec is not None else []
+    # the criterion scoring chose as deciding, when it has a series of its own
+    chosen = next((c for c in live if rec.deciding is not None and c.name == rec.deciding.name), None)
+    c = chosen or next((c for c in live if not c.passed), None) or (live[0] if live else None)
+    name = c.name if c else "height_error_max"
     sname, label, scale, unit, fmt = _LIVE[name]
-    limit = c.get("limit") if c else None
+    limit = c.limit if c else None
     return KeyMetric(label, np.asarray(series[sname]), scale, unit, fmt, limit,
                      averaged=name.endswith(("_rms", "_rmse_max", "_mean_deg")), score_from=score_from)
 
 
 def first_violation(result: dict, t_end: float) -> tuple[float, str] | None:
     """When, and by what, the scenario first went wrong; None when it passed."""
+    rec = _record(result)
+    if rec is not None and rec.deciding is not None:
+        d = rec.deciding
+        if rec.passed:
+            return None
+        if not d.passed and d.first_violation_s is not None:
+            return float(d.first_violation_s), f"first violation: {d.name} at {d.first_violation_s:.2f} s"
+    # a result written before the deciding criterion was recorded: the same rule over its criteria
     if result.get("status") == "passed":
         return None
     found = [(c["first_violation_s"], c["name"]) for c in result.get("criteria") or []
@@ -155,6 +165,16 @@ def first_violation(result: dict, t_end: float) -> tuple[float, str] | None:
         tv, name = min(found)
         return float(tv), f"first violation: {name} at {tv:.2f} s"
     return float(t_end), f"{result.get('status')}: {result.get('reason') or ''}".strip()
+
+
+def _record(result: dict):
+    """The run record of ``result``, or None for a file this bench cannot read as one (still drawn)."""
+    from bench.report.record import RecordError, RunRecord
+
+    try:
+        return RunRecord.from_json(result)
+    except RecordError:
+        return None
 
 
 # ---------------------------------------------------------------- one episode's frames

@@ -28,6 +28,8 @@ import math
 from dataclasses import dataclass, replace
 from pathlib import Path
 
+from bench.report.record import RecordError, RunRecord, as_record
+
 FORMAT = "quadruped-bench-baseline"
 FORMAT_VERSION = 1
 DIRECTIONS = ("lower", "higher", "none")
@@ -213,11 +215,13 @@ def read_results(results_dir: str | Path) -> list[dict]:
         if not p.is_file():
             raise BaselineError(f"{p}: listed in {summary} but missing")
         r = _read_json(p)
-        if not isinstance(r, dict) or not isinstance(r.get("scenario"), str) or "status" not in r:
-            raise BaselineError(f"{p}: not a result.json (needs 'scenario' and 'status')")
-        if r["scenario"] in seen:
+        try:
+            rec = RunRecord.from_json(r)
+        except RecordError as exc:
+            raise BaselineError(f"{p}: not a result.json: {exc}") from None
+        if rec.scenario in seen:
             continue
-        seen.add(r["scenario"])
+        seen.add(rec.scenario)
         results.append(r)
     if not results:
         raise BaselineError(f"{root}: no result.json files in this folder")
@@ -251,19 +255,20 @@ def make_baseline(results: list[dict], *, git: dict | None = None, tolerances: d
 
     scenarios = {}
     old = (keep or {}).get("scenarios", {})
-    for r in results:
+    for res in results:
+        r = as_record(res)
         entry = {
-            "status": r.get("status"),
-            "controller": r.get("controller"),
-            "seed": r.get("seed"),
-            "content_hash": r.get("content_hash", ""),
-            "source": r.get("source", ""),
-            "metrics": _finite_metrics(r.get("metrics")),
+            "status": r.status,
+            "controller": r.controller,
+            "seed": r.seed,
+            "content_hash": r.content_hash,
+            "source": r.source,
+            "metrics": _finite_metrics(r.metrics),
         }
-        kept = old.get(r["scenario"], {}).get("tolerances")
+        kept = old.get(r.scenario, {}).get("tolerances")
         if kept:
             entry["tolerances"] = kept
-        scenarios[r["scenario"]] = entry
+        scenarios[r.scenario] = entry
     return {
         "format": FORMAT,
         "format_version": FORMAT_VERSION,
@@ -342,14 +347,15 @@ ORDER = {"regressed": 0, "improved": 1, "changed": 2, "new": 3, "missing": 4, "s
 
 def compare_result(baseline: dict, result: dict) -> list[Row]:
     """Rows for one scenario's result against ``baseline`` (rows with verdict ``same`` included)."""
-    sid = result["scenario"]
+    rec = as_record(result)
+    sid = rec.scenario
     entry = baseline.get("scenarios", {}).get(sid)
     if entry is None:
-        return [Row(sid, "scenario", None, result.get("status"), "new", note="not in the baseline")]
+        return [Row(sid, "scenario", None, rec.status, "new", note="not in the baseline")]
     rows = []
-    b_status, c_status = entry.get("status"), result.get("status")
+    b_status, c_status = entry.get("status"), rec.status
     if b_status == "passed" and c_status != "passed":
-        reason = result.get("reason") or ""
+        reason = rec.reason or ""
         rows.append(Row(sid, "status", b_status, c_status, "regressed", note=reason))
     elif b_status != "passed" and c_status == "passed":
         rows.append(Row(sid, "status", b_status, c_status, "improved"))
@@ -358,15 +364,15 @@ def compare_result(baseline: dict, result: dict) -> list[Row]:
     else:
         rows.append(Row(sid, "status", b_status, c_status, "same"))
     notes = []
-    if entry.get("content_hash") and result.get("content_hash") and entry["content_hash"] != result["content_hash"]:
+    if entry.get("content_hash") and rec.content_hash and entry["content_hash"] != rec.content_hash:
         notes.append("scenario file changed since the baseline")
-    if entry.get("seed") is not None and result.get("seed") is not None and entry["seed"] != result["seed"]:
-        notes.append(f"seed {entry['seed']} -> {result['seed']}")
+    if entry.get("seed") is not None and entry["seed"] != rec.seed:
+        notes.append(f"seed {entry['seed']} -> {rec.seed}")
     if notes:
         rows.append(Row(sid, "scenario", None, None, "changed", note="; ".join(notes)))
     b_metrics = entry.get("metrics") or {}
-    c_metrics = _finite_metrics(result.get("metrics"))
-    senses = criterion_directions(result.get("criteria"))
+    c_metrics = _finite_metrics(rec.metrics)
+    senses = criterion_directions([c.to_json() for c in rec.criteria])
     for name in list(b_metrics) + [m for m in c_metrics if m not in b_metrics]:
         tol = tolerance_for(name, senses, baseline.get("tolerances"), entry.get("tolerances"))
         if tol.ignore:
@@ -403,11 +409,12 @@ def compare(baseline: dict, results: list[dict]) -> Comparison:
     rows: list[Row] = []
     got = set()
     new = []
-    for r in results:
-        got.add(r["scenario"])
+    for res in results:
+        r = as_record(res)
+        got.add(r.scenario)
         rs = compare_result(baseline, r)
         if rs and rs[0].metric == "scenario" and rs[0].verdict == "new":
-            new.append(r["scenario"])
+            new.append(r.scenario)
         rows += rs
     missing = [sid for sid in baseline.get("scenarios", {}) if sid not in got]
     for sid in missing:

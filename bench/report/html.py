@@ -66,8 +66,12 @@ def _read_json(path: Path):
         raise ReportError(f"{path}: not valid JSON: {exc}") from None
 
 
-def collect(results_dir: str | Path, make_plots: bool = True) -> tuple[list[Entry], dict | None]:
-    """The scenario results under ``results_dir`` in run order (summary.json's order when there is one)."""
+def collect(results_dir: str | Path, make_plots: bool = True, plotter=None) -> tuple[list[Entry], dict | None]:
+    """The scenario results under ``results_dir`` in run order (summary.json's order when there is one).
+
+    ``plotter(result_dir)`` draws a missing ``plots.png`` (the caller passes the render stage's; this
+    module draws nothing itself, so reporting does not depend on rendering).
+    """
     root = Path(results_dir)
     if (root / "result.json").is_file() and not (root / "summary.json").is_file():
         dirs, summary = [root], None           # one scenario's folder
@@ -99,11 +103,9 @@ def collect(results_dir: str | Path, make_plots: bool = True) -> tuple[list[Entr
             except ReportError:
                 media = {}
         plots = d / "plots.png"
-        if not plots.is_file() and make_plots and (d / "trace.npz").is_file():
+        if not plots.is_file() and make_plots and plotter is not None and (d / "trace.npz").is_file():
             try:
-                from bench.render.plots import plot_result
-
-                plot_result(d)
+                plotter(d)
             except Exception:  # noqa: BLE001 - the page says the plots are missing
                 pass
         entries.append(Entry(d, result, media, plots if plots.is_file() else None))
@@ -128,20 +130,14 @@ def _units() -> dict[str, str]:
 
 
 def deciding(result: dict) -> str:
-    """The criterion that decided the verdict (first failed, else the first one with a limit), as text."""
-    if result.get("status") in ("error", "timeout"):
-        return str(result.get("reason") or result.get("status"))
-    crits = result.get("criteria") or []
-    failed = [c for c in crits if not c.get("passed")]
-    c = failed[0] if failed else next((c for c in crits if c.get("name") != "no_fall"), crits[0] if crits else None)
-    if c is None:
-        return ""
-    if c["name"] == "no_fall":
-        fv = c.get("first_violation_s")
-        return "no_fall" + ("" if c.get("passed") else f" (fell at {fv:.2f} s)" if fv is not None else " (fell)")
-    val = "n/a" if c.get("value") is None else f"{c['value']:.3g}"
-    lim = "" if c.get("limit") is None else f" / {c['limit']:.3g}"
-    return f"{c['name']} {val}{lim}"
+    """The criterion that decided the verdict, as ``bench run``'s table shows it (the record's own choice)."""
+    from bench.report.record import RecordError
+    from bench.report.tables import deciding_text
+
+    try:
+        return deciding_text(result, width=200)
+    except RecordError as exc:   # a result.json this bench cannot read as a record: say so on the page
+        return str(result.get("reason") or f"unreadable result: {exc}")
 
 
 def _badge(status: str) -> str:
@@ -378,13 +374,13 @@ def render_html(entries: list[Entry], summary: dict | None, page_dir: Path, titl
 
 
 def write_report(results_dir: str | Path, out: str | Path | None = None, embed_videos: bool = False,
-                 make_plots: bool = True) -> Path:
+                 make_plots: bool = True, plotter=None) -> Path:
     """Write the page for ``results_dir`` (default ``<results_dir>/report.html``); return its path."""
     from bench.report.results import write_atomic
 
     results_dir = Path(results_dir)
     out = Path(out) if out else results_dir / "report.html"
-    entries, summary = collect(results_dir, make_plots=make_plots)
+    entries, summary = collect(results_dir, make_plots=make_plots, plotter=plotter)
     page = render_html(entries, summary, out.parent, str(results_dir), embed_videos)
     write_atomic(out, page.encode("utf-8"))
     try:

@@ -38,9 +38,18 @@ def _num(x) -> str:
 
 def deciding_text(result: dict) -> str:
     """The deciding criterion as one phrase: ``roll_error_max_deg 18.6 > 10 (first at 12.31 s)``."""
+    from bench.report.record import RecordError, RunRecord
+
+    try:
+        rec = RunRecord.from_json(result)
+    except RecordError:
+        rec = None
+    if rec is not None and rec.is_error:
+        return rec.reason or rec.status
     if result.get("status") in ("error", "timeout"):
         return result.get("reason") or result.get("status", "")
-    c = result.get("deciding")
+    # the criterion scoring chose and recorded; older files: the same rule over their criteria
+    c = rec.deciding.to_json() if rec is not None and rec.deciding is not None else None
     if not c:
         crits = result.get("criteria") or []
         failed = [x for x in crits if not x.get("passed")]

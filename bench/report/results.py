@@ -18,11 +18,10 @@ import re
 from pathlib import Path
 
 from bench.fileio import write_atomic  # noqa: F401 - re-exported
+from bench.report.record import REQUIRED_KEYS, RecordError, RunRecord, as_record
 
-#: Keys every result.json has (contracts.md); a file without one of them is not a complete result.
-RESULT_KEYS = ("scenario", "source", "controller", "seed", "status", "passed", "reason", "sim_time_s",
-               "wall_time_s", "realtime_factor", "controller_ms", "criteria", "metrics", "bench_version",
-               "mujoco_version")
+#: Keys every result.json has; a file without one of them is not a complete result.
+RESULT_KEYS = REQUIRED_KEYS
 #: Trace arrays that depend on the wall clock, left out of the trace digest.
 UNTIMED_EXCLUDE = ("controller_ms",)
 _TEMP = re.compile(r"^\..+\.[A-Za-z0-9_]+\.tmp$")
@@ -43,11 +42,28 @@ def write_json(path: Path, obj) -> None:
     write_atomic(path, (json.dumps(_clean(obj), indent=2, allow_nan=False) + "\n").encode())
 
 
+class ResultFolderError(ValueError):
+    """A scenario's results folder cannot be written safely; the message says which and why."""
+
+
 def scenario_dir(out_dir: Path, slug: str) -> Path:
-    d = (Path(out_dir) / slug)
-    # The slug is restricted to [A-Za-z0-9._-] by the scenario layer; refuse anything that escapes.
-    if d.resolve().parent != Path(out_dir).resolve():
-        raise ValueError(f"scenario id {slug!r} would write outside {out_dir}")
+    """``<out_dir>/<slug>``; raises :class:`ResultFolderError` when writing there would leave ``out_dir``.
+
+    The slug is restricted to ``[A-Za-z0-9._-]`` by the scenario layer; anything else is refused, and so
+    is a results folder that is a symbolic link (this run's files would land wherever it points).
+    """
+    if not slug or slug in (".", "..") or "/" in slug or "\\" in slug or "\0" in slug:
+        raise ResultFolderError(f"scenario id {slug!r} would write outside {out_dir}")
+    d = Path(out_dir) / slug
+    if d.is_symlink():
+        try:
+            target = os.readlink(d)
+        except OSError:
+            target = "?"
+        raise ResultFolderError(f"results folder {d} is a symbolic link (to {target}); remove it or choose "
+                                f"another results folder")
+    if d.exists() and not d.is_dir():
+        raise ResultFolderError(f"results folder {d} exists and is not a folder")
     return d
 
 
@@ -71,8 +87,13 @@ def write_outcome(out_dir: Path, slug: str, outcome) -> Path:
 
 def write_summary(out_dir: Path, entries: list[tuple[str, dict]], trials: list[dict] | None = None) -> dict:
     """``entries``: (slug, result) pairs in run order; ``trials``: one entry per trial scenario, if any."""
-    results = [{"scenario": r["scenario"], "status": r["status"], "reason": r["reason"],
-                "result": f"{slug}/result.json"} for slug, r in entries]
+    results = []
+    for slug, r in entries:
+        # a plugin entry holds only scenario, status and reason; a result.json mapping is read as a record
+        rec = as_record(r) if "criteria" in r else None
+        results.append({"scenario": rec.scenario if rec else r["scenario"],
+                        "status": rec.status if rec else r["status"],
+                        "reason": rec.reason if rec else r["reason"], "result": f"{slug}/result.json"})
     summary = {
         "total": len(results),
         "passed": sum(r["status"] == "passed" for r in results),
@@ -129,13 +150,17 @@ def complete_result(out_dir: Path, slug: str, *, scenario_id: str | None = None,
     missing = [k for k in RESULT_KEYS if k not in result]
     if missing:
         return None, f"result.json lacks {', '.join(missing)}"
+    try:
+        rec = RunRecord.from_json(result)
+    except RecordError as exc:
+        return None, f"result.json: {exc}"
     for key, want in (("scenario", scenario_id), ("seed", seed), ("controller", controller),
                       ("content_hash", content_hash)):
-        if want is not None and result.get(key) != want:
-            return None, f"result.json is for another {key} ({result.get(key)!r}, this run {want!r})"
+        if want is not None and getattr(rec, key) != want:
+            return None, f"result.json is for another {key} ({getattr(rec, key)!r}, this run {want!r})"
     trace = d / "trace.npz"
     if not trace.exists():
-        if result["status"] in ("error", "timeout") and not result.get("trace_sha256"):
+        if rec.is_error and not rec.trace_sha256:
             return result, ""
         return None, "no trace.npz"
     try:
@@ -144,7 +169,7 @@ def complete_result(out_dir: Path, slug: str, *, scenario_id: str | None = None,
             lacking = [k for k in CONTRACT_KEYS if k not in names]
             if lacking:
                 return None, f"trace.npz lacks {', '.join(lacking)}"
-            want_digest = result.get("trace_sha256")
+            want_digest = rec.trace_sha256
             if want_digest and trace_digest({k: z[k] for k in z.files if not k.startswith("meta_")}) != want_digest:
                 return None, "trace.npz does not match result.json (digest differs)"
     except Exception as exc:  # noqa: BLE001 - a torn or foreign file of any kind is just "not complete"

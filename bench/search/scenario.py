@@ -80,29 +80,31 @@ class ScenarioPredicate:
     # ------------------------------------------------------------------ predicate
 
     def __call__(self, values: list[float]) -> list[Evaluation]:
-        from bench.execute.job import Job, run_job
-        from bench.execute.outcomes import error_outcome
-        from bench.report.results import write_outcome
+        from bench.report.record import RunRecord
+        from bench.run import sinks as run_sinks
+        from bench.run.execute import execute
+        from bench.run.plan import make_plan
 
         groups = [self.scenarios_at(v) for v in values]
         flat = [(gi, sc) for gi, g in enumerate(groups) for sc in g]
-        jobs = [Job(sc, self.controller, None, self.limits) if self.limits is not None else
-                Job(sc, self.controller) for _, sc in flat]
-        results: list[dict | None] = [None] * len(jobs)
-        for i, outcome in self.executor.map(run_job, jobs, on_error=error_outcome):
-            results[i] = outcome.result
-            if self.out_dir is not None:
-                write_outcome(self.out_dir, flat[i][1].slug, outcome)
-            if self.on_outcome is not None:
-                self.on_outcome(outcome)
-        self.episodes += len(jobs)
+        # the same run path as bench run: the trials at each value are this plan's episodes
+        plan = make_plan([sc for _, sc in flat], controller=self.controller, limits=self.limits, expand=False)
+        sinks: list = []
+        if self.out_dir is not None:
+            sinks.append(run_sinks.ResultFiles(self.out_dir))
+        if self.on_outcome is not None:
+            sinks.append(run_sinks.Callback(lambda _episode, outcome: self.on_outcome(outcome)))
+        got = execute(plan, [e.index for e in plan.episodes], self.executor, sinks)
+        results = [got[i] for i in range(len(flat))]
+        self.episodes += len(flat)
         self.results.extend(results)
         out = []
         for gi, v in enumerate(values):
             rs = [results[i] for i, (g, _) in enumerate(flat) if g == gi]
             j = judge(rs, self.required)
-            statuses = sorted({r["status"] for r in rs})
-            detail = {"ids": [r["scenario"] for r in rs], "failing": j["failing"], "statuses": statuses,
-                      "reasons": sorted({r["reason"] for r in rs if r["reason"]})[:3]}
+            records = [RunRecord.from_json(r) for r in rs]
+            statuses = sorted({r.status for r in records})
+            detail = {"ids": [r.scenario for r in records], "failing": j["failing"], "statuses": statuses,
+                      "reasons": sorted({r.reason for r in records if r.reason})[:3]}
             out.append(Evaluation(j["rate"], j["verdict"] == "passed", j["trials"], tuple(j["interval"]), detail))
         return out

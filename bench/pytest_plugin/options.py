@@ -1,0 +1,201 @@
+"""Plugin options and ini keys, and the settings of one session made from them.
+
+Options (command line, or ``[tool.pytest.ini_options]`` key in brackets):
+``--bench-scenarios PATH`` (``bench_scenarios``, repeatable), ``--bench-controller NAME``
+(``bench_controller``), ``--bench-out DIR`` (``bench_out``), ``--bench-baseline FILE``
+(``bench_baseline``), ``--bench-history FILE`` / ``--bench-no-history`` (``bench_history``),
+``--bench-video none|failed|all`` (``bench_video``), ``--bench-video-dir DIR`` (``bench_video_dir``),
+glob (``bench_glob``, default ``*.yaml *.yml``). Paths in the ini file are relative to it; on the
+command line, to the current folder.
+"""
+
+from __future__ import annotations
+
+import fnmatch
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pytest
+
+MARKER = "bench"
+DEFAULT_GLOBS = ["*.yaml", "*.yml"]
+VIDEO_MODES = ("none", "failed", "all")
+
+
+def pytest_addoption(parser) -> None:
+    g = parser.getgroup("bench", "quadruped-bench scenarios")
+    g.addoption("--bench-scenarios", action="append", default=None, metavar="PATH",
+                help="scenario file or folder to collect as test items (repeatable; ini: bench_scenarios)")
+    g.addoption("--bench-controller", default=None, metavar="NAME",
+                help="controller to run the scenarios with: registered name, package.module:attribute or "
+                     "'exec:program args' (ini: bench_controller)")
+    g.addoption("--bench-out", default=None, metavar="DIR",
+                help="results folder (default bench-results/ in the rootdir; ini: bench_out)")
+    g.addoption("--bench-baseline", default=None, metavar="FILE",
+                help="fail items that regressed against this baseline.json (ini: bench_baseline)")
+    g.addoption("--bench-history", default=None, metavar="FILE",
+                help="history database (default <bench-out>/history.sqlite; ini: bench_history)")
+    g.addoption("--bench-no-history", action="store_true", default=False, help="do not record history")
+    g.addoption("--bench-video", default=None, choices=VIDEO_MODES,
+                help="render review videos for no scenario, failed ones or all (ini: bench_video)")
+    g.addoption("--bench-video-dir", default=None, metavar="DIR",
+                help="where review videos go (default videos/ in the rootdir; ini: bench_video_dir)")
+    parser.addini("bench_scenarios", "scenario files or folders to collect (relative to this file)",
+                  type="paths", default=[])
+    parser.addini("bench_controller", "controller to run scenario items with", default="")
+    parser.addini("bench_out", "results folder (relative to this file)", default="")
+    parser.addini("bench_baseline", "baseline.json that scenario items must not regress against", default="")
+    parser.addini("bench_history", "history database, or 'none' (relative to this file)", default="")
+    parser.addini("bench_video", "review videos: none, failed or all", default="none")
+    parser.addini("bench_video_dir", "where review videos go (default videos/ in the rootdir)", default="")
+    parser.addini("bench_glob", "file name patterns of scenario files", type="args", default=list(DEFAULT_GLOBS))
+
+
+@dataclass
+class Settings:
+    scenario_paths: list[Path]
+    globs: list[str]
+    controller: str
+    out: Path
+    baseline_path: Path | None
+    history_path: Path | None
+    video: str
+    video_dir: Path
+    explicit_files: set[Path] = field(default_factory=set)
+    baseline: dict | None = None
+    run_uid: str = ""
+    history: object = None     # bench.run.sinks.HistorySink, opened on first use
+    executor: object = None    # the session's executor, opened on first use
+    tags: set[str] = field(default_factory=set)
+    order: dict[str, int] = field(default_factory=dict)
+    warnings: list[str] = field(default_factory=list)
+    video_off: bool = False
+
+    @property
+    def active(self) -> bool:
+        return bool(self.scenario_paths or self.explicit_files)
+
+
+SETTINGS = pytest.StashKey[Settings]()
+
+
+def settings_of(config) -> Settings:
+    return config.stash[SETTINGS]
+
+
+def display_path(config, path: Path) -> str:
+    """A path relative to the folder pytest was started in when it is inside it, else absolute."""
+    path = Path(path)
+    base = Path(config.invocation_params.dir)
+    try:
+        return str(path.resolve().relative_to(base.resolve()))
+    except ValueError:
+        return str(path)
+
+
+def _ini_base(config) -> Path:
+    return Path(config.inipath).parent if config.inipath else Path(config.rootpath)
+
+
+def _ini_path(config, name: str) -> Path | None:
+    value = (config.getini(name) or "").strip()
+    return (_ini_base(config) / value) if value else None
+
+
+def matches(settings: Settings, path: Path) -> bool:
+    return any(fnmatch.fnmatch(path.name, g) for g in settings.globs)
+
+
+def make_settings(config) -> Settings:
+    from bench.run.plan import DEFAULT_CONTROLLER
+
+    cwd = Path(config.invocation_params.dir)
+    cli_paths = config.getoption("bench_scenarios")
+    if cli_paths:
+        scenario_paths = [(cwd / p).resolve() for p in cli_paths]
+    else:
+        scenario_paths = [Path(p).resolve() for p in config.getini("bench_scenarios")]
+    for p in scenario_paths:
+        if not p.exists():
+            src = "--bench-scenarios" if cli_paths else f"bench_scenarios in {config.inipath}"
+            raise pytest.UsageError(f"{src}: {p}: no such file or folder")
+
+    def opt(cli: str, ini: str) -> Path | None:
+        v = config.getoption(cli)
+        return (cwd / v) if v else _ini_path(config, ini)
+
+    out = opt("bench_out", "bench_out") or Path(config.rootpath) / "bench-results"
+    history: Path | None
+    ini_hist = (config.getini("bench_history") or "").strip()
+    if config.getoption("bench_no_history") or ini_hist.lower() == "none":
+        history = None
+    else:
+        from bench.report.history import default_path
+
+        history = opt("bench_history", "bench_history") or default_path(out)
+    video = config.getoption("bench_video") or (config.getini("bench_video") or "none").strip()
+    if video not in VIDEO_MODES:
+        raise pytest.UsageError(f"bench_video in {config.inipath}: {video!r} is not one of {', '.join(VIDEO_MODES)}")
+    globs = list(config.getini("bench_glob")) or list(DEFAULT_GLOBS)
+    settings = Settings(
+        scenario_paths=scenario_paths,
+        globs=globs,
+        controller=config.getoption("bench_controller") or (config.getini("bench_controller") or "").strip()
+        or DEFAULT_CONTROLLER,
+        out=out,
+        baseline_path=opt("bench_baseline", "bench_baseline"),
+        history_path=history,
+        video=video,
+        video_dir=opt("bench_video_dir", "bench_video_dir") or Path(config.rootpath) / "videos",
+    )
+    # Scenario files named on the command line are collected even outside the configured folders.
+    if config.args_source == pytest.Config.ArgsSource.ARGS:
+        for a in config.args:
+            p = (cwd / a.split("::")[0]).resolve()
+            if p.is_file() and matches(settings, p):
+                settings.explicit_files.add(p)
+    return settings
+
+
+def pytest_configure(config) -> None:
+    from bench.pytest_plugin.reporting import SessionReporter
+
+    config.addinivalue_line("markers", f"{MARKER}: a quadruped-bench scenario item")
+    settings = make_settings(config)
+    config.stash[SETTINGS] = settings
+    config.pluginmanager.register(SessionReporter(config), "bench-session-reporter")
+    workerinput = getattr(config, "workerinput", None)
+    from bench.report.history import new_run_uid
+
+    settings.run_uid = (workerinput or {}).get("bench_run_uid") or new_run_uid()
+    if settings.active:
+        # as bench run: a controller name that resolves to nothing is invalid input, before anything runs
+        from bench.run.errors import InvalidInput
+        from bench.run.plan import check_controller
+
+        try:
+            check_controller(settings.controller)
+        except InvalidInput as exc:
+            raise pytest.UsageError(f"--bench-controller: {exc}") from None
+    if settings.baseline_path is not None:
+        from bench.report.baseline import BaselineError, load_baseline
+
+        try:
+            settings.baseline = load_baseline(settings.baseline_path)
+        except BaselineError as exc:
+            raise pytest.UsageError(f"--bench-baseline: {exc}") from None
+    # Configured folders outside what pytest is about to walk are added to its arguments, unless
+    # the user named paths on the command line (then only --bench-scenarios adds).
+    explicit_args = config.args_source == pytest.Config.ArgsSource.ARGS
+    if settings.scenario_paths and (not explicit_args or config.getoption("bench_scenarios")):
+        cwd = Path(config.invocation_params.dir)
+        walked = [(cwd / a.split("::")[0]).resolve() for a in config.args]
+        for p in settings.scenario_paths:
+            if not any(p == w or w in p.parents for w in walked):
+                config.args.append(str(p))
+
+
+@pytest.hookimpl(optionalhook=True)
+def pytest_configure_node(node) -> None:
+    """pytest-xdist: every worker records its results under the session's run uid."""
+    node.workerinput["bench_run_uid"] = settings_of(node.config).run_uid
