@@ -175,3 +175,15 @@ def test_results_without_summary_are_found_by_folder(tmp_path):
     write_json(tmp_path / "a" / "result.json", result("a"))
     write_json(tmp_path / "b" / "result.json", result("b"))
     assert [r["scenario"] for r in read_results(tmp_path)] == ["a", "b"]
+
+
+def test_wall_clock_metrics_are_left_out_unless_asked():
+    """A busy CI host multiplies compute time; that is not a regression of the controller."""
+    base = make_baseline([result(**{"controller.qp_ms_mean": 0.02})])
+    slow = result(controller_ms_p99=2.11, **{"controller.qp_ms_mean": 1.5})
+    rows = compare_result(base, slow)
+    assert not [r for r in rows if r.verdict == "regressed"]
+    assert not [r for r in rows if "ms" in r.metric]
+    timed = compare_result(base, slow, include_timing=True)
+    assert {r.metric for r in timed if r.verdict == "regressed"} == {"controller_ms_p99"}
+    assert not compare(base, [slow]).regressed and compare(base, [slow], include_timing=True).regressed

@@ -16,6 +16,9 @@ def register(sub) -> None:
     p.add_argument("results", metavar="RESULTS_DIR", help="the --out folder of a `bench run`")
     p.add_argument("baseline", metavar="BASELINE", help="a file written by `bench baseline save`")
     p.add_argument("--all", action="store_true", help="also list the metrics that stayed the same")
+    p.add_argument("--include-timing", action="store_true",
+                   help="also compare wall-clock metrics (controller compute time); left out by default because "
+                        "they depend on the machine and its load")
     p.add_argument("--strict", action="store_true",
                    help="also exit 1 when a baseline scenario is missing from the results")
     p.set_defaults(func=run)
@@ -31,7 +34,7 @@ def run(args) -> int:
     except BaselineError as exc:
         print(f"bench compare: {exc}", file=sys.stderr)
         return 2
-    cmp = compare(baseline, results)
+    cmp = compare(baseline, results, include_timing=args.include_timing)
     b_ctrl = sorted({str(e.get("controller")) for e in baseline["scenarios"].values()})
     r_ctrl = sorted({str(r.get("controller")) for r in results})
     if b_ctrl != r_ctrl:

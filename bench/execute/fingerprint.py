@@ -11,18 +11,12 @@ bit (float64 values and raw array bytes, not rounded).
 from __future__ import annotations
 
 import hashlib
-import re
 
 import numpy as np
 
 #: Trace arrays that hold wall-clock measurements.
 TIMING_TRACE_KEYS = frozenset({"controller_ms"})
-_TIMING_TOKEN = re.compile(r"(^|[._])(ms|wall|time_ms)([._]|$)")
-
-
-def is_timing_metric(name: str) -> bool:
-    """``controller_ms_p99``, ``controller.qp_ms_mean``: a wall-clock figure, not a result."""
-    return bool(_TIMING_TOKEN.search(name))
+from bench.scoring.metrics import is_timing_metric  # noqa: F401 - re-exported
 
 
 def result_metrics(result: dict) -> dict[str, float]:

@@ -29,6 +29,7 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 from bench.report.record import RecordError, RunRecord, as_record
+from bench.scoring.metrics import is_timing_metric
 
 FORMAT = "quadruped-bench-baseline"
 FORMAT_VERSION = 1
@@ -345,8 +346,12 @@ class Row:
 ORDER = {"regressed": 0, "improved": 1, "changed": 2, "new": 3, "missing": 4, "same": 5}
 
 
-def compare_result(baseline: dict, result: dict) -> list[Row]:
-    """Rows for one scenario's result against ``baseline`` (rows with verdict ``same`` included)."""
+def compare_result(baseline: dict, result: dict, *, include_timing: bool = False) -> list[Row]:
+    """Rows for one scenario's result against ``baseline`` (rows with verdict ``same`` included).
+
+    Wall-clock metrics (controller compute time) depend on the machine and its load, so they are left
+    out unless ``include_timing``.
+    """
     rec = as_record(result)
     sid = rec.scenario
     entry = baseline.get("scenarios", {}).get(sid)
@@ -375,7 +380,7 @@ def compare_result(baseline: dict, result: dict) -> list[Row]:
     senses = criterion_directions([c.to_json() for c in rec.criteria])
     for name in list(b_metrics) + [m for m in c_metrics if m not in b_metrics]:
         tol = tolerance_for(name, senses, baseline.get("tolerances"), entry.get("tolerances"))
-        if tol.ignore:
+        if tol.ignore or (not include_timing and is_timing_metric(name)):
             continue
         b = b_metrics.get(name)
         b = float(b) if isinstance(b, (int, float)) and not isinstance(b, bool) else None
@@ -404,7 +409,7 @@ class Comparison:
         return sorted({r.scenario for r in self.rows if r.verdict == verdict})
 
 
-def compare(baseline: dict, results: list[dict]) -> Comparison:
+def compare(baseline: dict, results: list[dict], *, include_timing: bool = False) -> Comparison:
     """Every row of every result against ``baseline``, plus baseline scenarios that are not in the results."""
     rows: list[Row] = []
     got = set()
@@ -412,7 +417,7 @@ def compare(baseline: dict, results: list[dict]) -> Comparison:
     for res in results:
         r = as_record(res)
         got.add(r.scenario)
-        rs = compare_result(baseline, r)
+        rs = compare_result(baseline, r, include_timing=include_timing)
         if rs and rs[0].metric == "scenario" and rs[0].verdict == "new":
             new.append(r.scenario)
         rows += rs

@@ -16,12 +16,24 @@ Error metrics cover ticks with ``t >= score_from``.
 
 from __future__ import annotations
 
+import re
+
 import numpy as np
 
 from bench.sim.trace import Trace
 
 #: Time after each command change left out of velocity tracking, s (common practice, no source).
 COMMAND_SETTLE_S = 1.0
+#: Metric names that hold wall-clock figures (``controller_ms_p99``, ``controller.qp_ms_mean``): they depend on
+#: the machine and its load, not on the controller's behaviour.
+_TIMING_TOKEN = re.compile(r"(^|[._])(ms|wall|time_ms)([._]|$)")
+
+
+def is_timing_metric(name: str) -> bool:
+    """True for a wall-clock metric (compute time), which comparisons leave out unless asked."""
+    return bool(_TIMING_TOKEN.search(name))
+
+
 #: A joint counts as saturated at this share of its limit.
 SATURATION_SHARE = 0.99
 
