@@ -70,7 +70,7 @@ def test_daqp_matches_reference_solver_quadprog(seed):
 
 def test_direct_daqp_path_gives_the_same_answer():
     rng = np.random.default_rng(1)
-    a, b = ForceQP(), ForceQP(direct=True)
+    a, b = ForceQP(direct=False), ForceQP(direct=True)
     for _ in range(20):
         w = np.array([*rng.normal(scale=20.0, size=2), MASS * G, *rng.normal(scale=3.0, size=3)])
         np.testing.assert_allclose(a.solve(R_FEET, w, ALL), b.solve(R_FEET, w, ALL), atol=1e-6)
@@ -112,13 +112,35 @@ def test_infeasible_solve_falls_back_and_counts(direct):
     np.testing.assert_array_equal(f2[2], 0.0)
 
 
-def test_solver_exception_never_raises(monkeypatch):
+def test_direct_daqp_is_the_default_and_bit_identical_to_the_wrapper():
+    # The reference stacks call DAQP directly by default; the direct call must hand DAQP the very
+    # data the qpsolvers wrapper would (same layout, same warm start), so that episodes recorded
+    # either way are identical to the last bit: over a trot-like sequence of contact patterns,
+    # loads and wrenches, with the warm start carried from tick to tick.
+    assert ForceQP().direct and not ForceQP(solver="quadprog").direct and not ForceQP(direct=False).direct
+    rng = np.random.default_rng(7)
+    wrapped, direct = ForceQP(direct=False), ForceQP()
+    patterns = [ALL, np.array([1.0, 0.0, 0.0, 1.0]), np.array([1.0, 0.3, 0.3, 1.0]), np.array([0.0, 1.0, 1.0, 0.0]),
+                np.array([0.6, 1.0, 1.0, 0.6])]
+    for k in range(200):
+        r = R_FEET + rng.normal(scale=0.02, size=(4, 3))
+        w = np.array([*rng.normal(scale=20.0, size=2), MASS * G * rng.uniform(0.8, 1.3), *rng.normal(scale=3.0, size=3)])
+        load = patterns[(k // 7) % len(patterns)]
+        np.testing.assert_array_equal(wrapped.solve(r, w, load), direct.solve(r, w, load))
+    assert wrapped.fallbacks == direct.fallbacks == 0
+
+
+@pytest.mark.parametrize("direct", [False, True])
+def test_solver_exception_never_raises(monkeypatch, direct):
     import qpsolvers
 
     def boom(*a, **k):
         raise RuntimeError("solver crashed")
 
-    monkeypatch.setattr(qpsolvers, "solve_problem", boom)
-    qp = ForceQP()
+    qp = ForceQP(direct=direct)
+    if direct:
+        monkeypatch.setattr(qp, "_daqp_solve", boom)
+    else:
+        monkeypatch.setattr(qpsolvers, "solve_problem", boom)
     f = qp.solve(R_FEET, np.array([0, 0, MASS * G, 0, 0, 0.0]), ALL)
     assert qp.fallbacks == 1 and np.all(np.isfinite(f))

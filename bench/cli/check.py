@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from bench.cli.common import load_or_report
+from bench.cli.common import add_robot_option, load_or_report
 
 
 def register(sub) -> None:
@@ -11,12 +11,13 @@ def register(sub) -> None:
     p.add_argument("paths", nargs="+", metavar="PATH", help="scenario file or folder (searched for *.yaml)")
     p.add_argument("--root", action="append", default=[], metavar="DIR",
                    help="extra folder that scenarios may reference files in (repeatable)")
+    add_robot_option(p)
     p.add_argument("-q", "--quiet", action="store_true", help="print nothing when valid")
     p.set_defaults(func=run)
 
 
 def run(args) -> int:
-    scenarios = load_or_report(args.paths, args.root)
+    scenarios = load_or_report(args.paths, args.root, robot=args.robot)
     if scenarios is None:
         return 2
     if not args.quiet:

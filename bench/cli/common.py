@@ -8,13 +8,13 @@ from bench.errors import ScenarioError, ScenarioErrors
 from bench.report.tables import print_table  # noqa: F401 - re-exported for the subcommands
 
 
-def load_or_report(paths: list[str], roots: list[str] | None = None):
-    """Load and check scenarios (robot checks included); on problems print each as
-    ``path:line:col: message`` and return None."""
+def load_or_report(paths: list[str], roots: list[str] | None = None, robot: str | None = None):
+    """Load and check scenarios (robot checks included; ``robot`` replaces every scenario's robot);
+    on problems print each as ``path:line:col: message`` and return None."""
     from bench.run.load import load_checked
 
     try:
-        return load_checked(list(paths), roots or [])
+        return load_checked(list(paths), roots or [], robot=robot)
     except ScenarioErrors as exc:
         for err in exc.errors:
             print(str(err), file=sys.stderr)
@@ -24,3 +24,10 @@ def load_or_report(paths: list[str], roots: list[str] | None = None):
     except ScenarioError as exc:
         print(str(exc), file=sys.stderr)
         return None
+
+
+def add_robot_option(p) -> None:
+    """``--robot NAME|MANIFEST``: run every scenario on another robot (same for run, check and limit)."""
+    p.add_argument("--robot", default=None, metavar="NAME|MANIFEST",
+                   help="replace every scenario's robot for this run: a bundled robot's name (e.g. quad30) or "
+                        "a robot manifest.yaml (bench robot init drafts one)")

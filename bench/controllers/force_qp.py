@@ -28,10 +28,12 @@ dual active-set solver), given the previous solution as warm start
 ``qpsolvers.Problem`` of each contact pattern is built once over preallocated
 matrices, which are rewritten in place every tick, and handed to
 ``qpsolvers.solve_problem`` (what ``qpsolvers.solve_qp`` calls after building a
-Problem). With
-``direct=True`` and ``solver="daqp"`` the same solver is called without the
-``qpsolvers`` wrapper on the same preallocated arrays (2-3x less time per
-solve; the answer is the same).
+Problem). With ``solver="daqp"`` the same solver is called directly by default
+(``direct=None`` or ``True``), without the ``qpsolvers`` wrapper, on the same
+preallocated arrays laid out exactly as the wrapper lays them out (bounds first,
+then the pyramid rows; same warm start): 2-3x less time per solve and a
+bit-identical answer. ``direct=False`` keeps the wrapper, as does any other
+back end.
 
 A failed or infeasible solve, an exception inside the solver, or non-finite
 output never raises: the previous forces scaled by ``fallback_scale`` are used
@@ -46,7 +48,6 @@ import time
 from ctypes import c_int
 
 import numpy as np
-import qpsolvers
 
 _BIG_FORCE = 1e6  # stand-in for "unbounded" tangential force bounds (N)
 
@@ -112,7 +113,7 @@ class _Pattern:
         self.ub[:] = _BIG_FORCE
         self.lb[:] = -_BIG_FORCE
         self.sense = np.zeros(nx + m_ineq, dtype=c_int)
-        self.problem = qpsolvers.Problem(self.P, self.q, self.G, self.h, lb=self.lb, ub=self.ub)
+        self.problem = None   # the qpsolvers Problem over the same arrays, made when a wrapped solve needs it
 
 
 class ForceQP:
@@ -128,7 +129,7 @@ class ForceQP:
     wrench_weights: diagonal of ``S``: (fx, fy, fz, tx, ty, tz).
     solver: ``qpsolvers`` back end name.
     fallback_scale: factor on the previous forces when a solve fails.
-    direct: call DAQP directly (only with ``solver="daqp"``).
+    direct: call DAQP directly; ``None`` (default): when ``solver="daqp"``.
 
     Swing feet (load 0) are not decision variables at all: each contact pattern
     gets its own preallocated QP over its stance feet (built the first time the
@@ -147,7 +148,7 @@ class ForceQP:
         wrench_weights=(1.0, 1.0, 1.0, 20.0, 20.0, 10.0),
         solver: str = "daqp",
         fallback_scale: float = 0.9,
-        direct: bool = False,
+        direct: bool | None = None,
     ) -> None:
         self.n_feet = n = int(n_feet)
         self.nx = 3 * n
@@ -163,7 +164,7 @@ class ForceQP:
             raise ValueError("wrench_weights must have 6 entries")
         if direct and solver != "daqp":
             raise ValueError("direct=True is only available for solver='daqp'")
-        self.direct = bool(direct)
+        self.direct = solver == "daqp" if direct is None else bool(direct)
         if self.direct:
             import daqp  # the back end qpsolvers would call
             self._daqp_solve = daqp.solve
@@ -204,7 +205,7 @@ class ForceQP:
             return self.f
         pt = self._patterns[key]
         # wrench map (scaled by sqrt(2 S)), in B and, transposed, in Mq
-        np.take(r, pt.r_src, out=pt.b_vals)
+        r.take(pt.r_src, out=pt.b_vals)
         pt.b_vals *= pt.b_sgn
         pt.B.put(pt.b_dst, pt.b_vals)
         pt.Mq.put(pt.mq_dst, pt.b_vals)
@@ -234,6 +235,10 @@ class ForceQP:
                 if flag > 0:
                     x = sol
             else:
+                import qpsolvers  # imported on first use: the default direct path never needs it (nor scipy)
+
+                if pt.problem is None:
+                    pt.problem = qpsolvers.Problem(pt.P, pt.q, pt.G, pt.h, lb=pt.lb, ub=pt.ub)
                 sol = qpsolvers.solve_problem(pt.problem, solver=self.solver, initvals=pt.f_prev)
                 if sol.found:
                     x = sol.x
@@ -245,7 +250,7 @@ class ForceQP:
         self.solves += 1
         ok = x is not None
         if ok:
-            for v in x:  # cheap finiteness check on a short vector
+            for v in x.tolist():  # cheap finiteness check on a short vector
                 if not math.isfinite(v):
                     ok = False
                     break

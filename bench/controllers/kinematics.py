@@ -83,6 +83,10 @@ class LegKinematics:
             self.bias = np.zeros(self.n_joints)
         self._qvel = d.qvel
         self._site_xpos = d.site_xpos
+        self._qpos_joints = d.qpos[self._jq] if isinstance(self._jq, slice) else None   # a view
+        self._qvel_joints = d.qvel[self._jv] if isinstance(self._jv, slice) else None
+        feet = _as_slice(self._site_idx)
+        self._feet_xpos = d.site_xpos[feet] if isinstance(feet, slice) else None        # a view
 
         # constants at the nominal pose
         d0 = mujoco.MjData(m)
@@ -104,16 +108,26 @@ class LegKinematics:
         m, d = self.model, self.data
         self._base_pos[:] = obs.privileged.base_pos
         self._base_quat[:] = obs.imu_quat
-        d.qpos[self._jq] = obs.joint_pos
+        if self._qpos_joints is not None:
+            self._qpos_joints[:] = obs.joint_pos
+        else:
+            d.qpos[self._jq] = obs.joint_pos
         self._base_vel[:] = obs.privileged.base_linvel
         self._base_angvel[:] = obs.imu_gyro
-        self._qvel[self._jv] = obs.joint_vel
+        if self._qvel_joints is not None:
+            self._qvel_joints[:] = obs.joint_vel
+        else:
+            self._qvel[self._jv] = obs.joint_vel
         mujoco.mj_kinematics(m, d)
         mujoco.mj_comPos(m, d)
         rows = self._jac_rows
+        jac_site = mujoco.mj_jacSite
         for i, s in enumerate(self._sites):
-            mujoco.mj_jacSite(m, d, rows[i], None, s)
-        np.take(self._site_xpos, self._site_idx, axis=0, out=self.foot_pos)
+            jac_site(m, d, rows[i], None, s)
+        if self._feet_xpos is not None:
+            self.foot_pos[:] = self._feet_xpos
+        else:
+            self._site_xpos.take(self._site_idx, axis=0, out=self.foot_pos)
         np.matmul(self.jac, self._qvel, out=self._foot_vel_flat)
         if self._copy_jac:
             np.take(self.jac, self._jv, axis=1, out=self.jac_joints)

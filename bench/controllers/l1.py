@@ -127,8 +127,9 @@ class L1Adaptive:
         self.y *= self._decay
         np.matmul(self._alpha_matched, self.x_tilde, out=self._tmp_m)
         self.y -= self._tmp_m
-        if self.u_max is not None:
-            np.clip(self.y, self._neg_u_max, self.u_max, out=self.u)
+        if self.u_max is not None:   # a clip, as two ufunc calls (np.clip goes through four Python layers)
+            np.maximum(self.y, self._neg_u_max, out=self.u)
+            np.minimum(self.u, self.u_max, out=self.u)
         else:
             self.u[:] = self.y
         # Exact step of xh_dot = As xh + (Am - As) x + Bm u + sigma_h with x, u,

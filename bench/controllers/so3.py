@@ -102,30 +102,32 @@ def so3_log(r: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
     """
     if out is None:
         out = np.empty(3)
-    tr = r[0, 0] + r[1, 1] + r[2, 2]
+    # nine Python floats: element access on them is far cheaper than on the array (same values)
+    (r00, r01, r02), (r10, r11, r12), (r20, r21, r22) = r.tolist() if isinstance(r, np.ndarray) else r
+    tr = r00 + r11 + r22
     if tr > 0.0:
         s = 2.0 * math.sqrt(tr + 1.0)
         qw = 0.25 * s
-        qx = (r[2, 1] - r[1, 2]) / s
-        qy = (r[0, 2] - r[2, 0]) / s
-        qz = (r[1, 0] - r[0, 1]) / s
-    elif r[0, 0] > r[1, 1] and r[0, 0] > r[2, 2]:
-        s = 2.0 * math.sqrt(1.0 + r[0, 0] - r[1, 1] - r[2, 2])
-        qw = (r[2, 1] - r[1, 2]) / s
+        qx = (r21 - r12) / s
+        qy = (r02 - r20) / s
+        qz = (r10 - r01) / s
+    elif r00 > r11 and r00 > r22:
+        s = 2.0 * math.sqrt(1.0 + r00 - r11 - r22)
+        qw = (r21 - r12) / s
         qx = 0.25 * s
-        qy = (r[0, 1] + r[1, 0]) / s
-        qz = (r[0, 2] + r[2, 0]) / s
-    elif r[1, 1] > r[2, 2]:
-        s = 2.0 * math.sqrt(1.0 + r[1, 1] - r[0, 0] - r[2, 2])
-        qw = (r[0, 2] - r[2, 0]) / s
-        qx = (r[0, 1] + r[1, 0]) / s
+        qy = (r01 + r10) / s
+        qz = (r02 + r20) / s
+    elif r11 > r22:
+        s = 2.0 * math.sqrt(1.0 + r11 - r00 - r22)
+        qw = (r02 - r20) / s
+        qx = (r01 + r10) / s
         qy = 0.25 * s
-        qz = (r[1, 2] + r[2, 1]) / s
+        qz = (r12 + r21) / s
     else:
-        s = 2.0 * math.sqrt(1.0 + r[2, 2] - r[0, 0] - r[1, 1])
-        qw = (r[1, 0] - r[0, 1]) / s
-        qx = (r[0, 2] + r[2, 0]) / s
-        qy = (r[1, 2] + r[2, 1]) / s
+        s = 2.0 * math.sqrt(1.0 + r22 - r00 - r11)
+        qw = (r10 - r01) / s
+        qx = (r02 + r20) / s
+        qy = (r12 + r21) / s
         qz = 0.25 * s
     return _quat_log(qw, qx, qy, qz, out)
 

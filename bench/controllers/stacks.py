@@ -60,7 +60,8 @@ class ForceQPController:
     swing_height_m, k_vel, max_reach_m, swing_kp, swing_kd: swing planner.
     leg_bias_ff: add the nominal model's gravity/Coriolis joint torques (feed-forward).
     mu, fz_min_n, fz_max_n, alpha, beta, wrench_weights, solver, qp_direct: force QP
-        (``qp_direct`` calls DAQP without the qpsolvers wrapper, see ``force_qp.py``).
+        (``qp_direct``: call DAQP without the qpsolvers wrapper; ``None``, the default, does
+        so when ``solver="daqp"``, ``False`` keeps the wrapper; see ``force_qp.py``).
     kp_pos, kd_pos, kp_rot, kd_rot: trunk PD (accelerations per unit error).
     max_lin_acc (m/s^2), max_yaw_acc (rad/s^2): command rate limits.
     max_pos_err_m, max_yaw_err_rad: clip on the horizontal position / heading error.
@@ -88,7 +89,7 @@ class ForceQPController:
         beta: float = 1e-4,
         wrench_weights=(1.0, 1.0, 1.0, 20.0, 20.0, 10.0),
         solver: str = "daqp",
-        qp_direct: bool = False,
+        qp_direct: bool | None = None,
         kp_pos=(40.0, 40.0, 100.0),
         kd_pos=(12.0, 12.0, 20.0),
         kp_rot=(250.0, 250.0, 200.0),
@@ -228,13 +229,13 @@ class ForceQPController:
         self.ground_z = gz
         pd[2] = gz + self.height_nominal
         self.p_des[:] = pd
-        self.v_des[0], self.v_des[1], self.v_des[2] = vx, vy, gx * vx + gy * vy
+        v_des = [vx, vy, gx * vx + gy * vy]
+        self.v_des[:] = v_des
         self.w_des[2] = c[2]
 
-        # wrench (+ adaptive term) and stance forces
+        # wrench (+ adaptive term) and stance forces; 3-vectors handed over as Python floats (same values)
         wr = self.wrench
-        wr.update_errors(obs.privileged.base_pos, vel_arr, rot, obs.imu_gyro, self.p_des, self.v_des,
-                         self.rot_des, self.w_des)
+        wr.update_errors(pos, vel, rot, obs.imu_gyro.tolist(), pd, v_des, self.rot_des, self.w_des.tolist())
         self._adapt()
         w = wr.compute_wrench(rot)
         np.subtract(kin.foot_pos, kin.com, out=self.r)

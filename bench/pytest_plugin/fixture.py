@@ -37,7 +37,8 @@ class BenchRunner:
                 p = here
         roots = [q for q in settings_of(self.config).scenario_paths if q.is_dir()]
         try:
-            return load_file_checked(display_path(self.config, p.resolve()) if p.exists() else str(p), roots)
+            return load_file_checked(display_path(self.config, p.resolve()) if p.exists() else str(p), roots,
+                                     robot=settings_of(self.config).robot)
         except (ScenarioError, ScenarioErrors) as exc:
             pytest.fail(f"bench_run: invalid scenario:\n{exc}", pytrace=False)
 

@@ -26,6 +26,9 @@ def pytest_addoption(parser) -> None:
     g = parser.getgroup("bench", "quadruped-bench scenarios")
     g.addoption("--bench-scenarios", action="append", default=None, metavar="PATH",
                 help="scenario file or folder to collect as test items (repeatable; ini: bench_scenarios)")
+    g.addoption("--bench-robot", default=None, metavar="NAME|MANIFEST",
+                help="run every scenario on this robot instead of its own: a bundled robot's name or a "
+                     "manifest.yaml (ini: bench_robot, relative to the ini file)")
     g.addoption("--bench-controller", default=None, metavar="NAME",
                 help="controller to run the scenarios with: registered name, package.module:attribute or "
                      "'exec:program args' (ini: bench_controller)")
@@ -43,6 +46,8 @@ def pytest_addoption(parser) -> None:
     parser.addini("bench_scenarios", "scenario files or folders to collect (relative to this file)",
                   type="paths", default=[])
     parser.addini("bench_controller", "controller to run scenario items with", default="")
+    parser.addini("bench_robot", "robot to run every scenario on (a bundled name, or a manifest relative to "
+                  "this file)", default="")
     parser.addini("bench_out", "results folder (relative to this file)", default="")
     parser.addini("bench_baseline", "baseline.json that scenario items must not regress against", default="")
     parser.addini("bench_history", "history database, or 'none' (relative to this file)", default="")
@@ -70,6 +75,7 @@ class Settings:
     order: dict[str, int] = field(default_factory=dict)
     warnings: list[str] = field(default_factory=list)
     video_off: bool = False
+    robot: str | None = None   # --bench-robot: every scenario runs on it
 
     @property
     def active(self) -> bool:
@@ -148,6 +154,22 @@ def make_settings(config) -> Settings:
         video=video,
         video_dir=opt("bench_video_dir", "bench_video_dir") or Path(config.rootpath) / "videos",
     )
+    robot = config.getoption("bench_robot")
+    if not robot:
+        ini_robot = (config.getini("bench_robot") or "").strip()
+        if ini_robot:
+            base = Path(config.inipath).parent if config.inipath else Path(config.rootpath)
+            robot = str(base / ini_robot) if ("/" in ini_robot or ini_robot.endswith((".yaml", ".yml"))) \
+                else ini_robot
+    if robot:
+        from bench.run.errors import InvalidInput
+        from bench.run.load import robot_override
+
+        try:
+            robot_override(robot)
+        except InvalidInput as exc:
+            raise pytest.UsageError(f"--bench-robot: {exc}") from None
+        settings.robot = robot
     # Scenario files named on the command line are collected even outside the configured folders.
     if config.args_source == pytest.Config.ArgsSource.ARGS:
         for a in config.args:

@@ -26,22 +26,59 @@ def robot_problems(scenarios: Iterable) -> list[ScenarioError]:
     return list(dict.fromkeys(errors))
 
 
-def load_checked(paths: Iterable[str | Path], roots: Iterable[str | Path] = ()) -> list:
-    """Every scenario under ``paths``, fully checked; raises ``ScenarioErrors`` listing every problem."""
+def robot_override(robot: str) -> object:
+    """The value a scenario's ``robot:`` takes for ``--robot ROBOT``: a bundled name, or a manifest file
+    (a path, or a folder holding manifest.yaml) as given on the command line, made absolute."""
+    from bench.robot.locate import bundled_robot_names
+    from bench.run.errors import InvalidInput
+    from bench.suggest import did_you_mean
+
+    text = str(robot).strip()
+    names = bundled_robot_names()
+    looks_like_path = "/" in text or "\\" in text or text.endswith((".yaml", ".yml")) or Path(text).exists()
+    if not looks_like_path:
+        if text not in names:
+            hint = did_you_mean(text, names)
+            raise InvalidInput(f"--robot: no bundled robot {text!r}" + (f"; {hint}" if hint else "")
+                               + f" (bundled: {', '.join(names)}; or give a manifest.yaml path)")
+        return text
+    path = Path(text).expanduser().resolve()
+    if path.is_dir():
+        path = path / "manifest.yaml"
+    if not path.is_file():
+        raise InvalidInput(f"--robot: no robot manifest at {path} (bench robot init MODEL drafts one)")
+    return {"manifest": str(path)}
+
+
+def with_robot(scenarios: list, robot: str | None) -> list:
+    """``scenarios`` with their robot replaced for the whole run (``--robot``); ids are unchanged."""
+    if not robot:
+        return scenarios
+    from bench.scenario.compose import derive
+
+    value = robot_override(robot)
+    return [derive(sc, {"robot": value}, "") for sc in scenarios]
+
+
+def load_checked(paths: Iterable[str | Path], roots: Iterable[str | Path] = (), robot: str | None = None) -> list:
+    """Every scenario under ``paths``, fully checked; raises ``ScenarioErrors`` listing every problem.
+
+    ``robot`` replaces every scenario's robot (``--robot``) before the robot checks.
+    """
     from bench.scenario.loader import load_scenarios
 
-    scenarios = load_scenarios(list(paths), roots=[Path(r) for r in roots])
+    scenarios = with_robot(load_scenarios(list(paths), roots=[Path(r) for r in roots]), robot)
     errors = robot_problems(scenarios)
     if errors:
         raise ScenarioErrors(errors)
     return scenarios
 
 
-def load_file_checked(path: str | Path, roots: Iterable[str | Path] = ()) -> list:
+def load_file_checked(path: str | Path, roots: Iterable[str | Path] = (), robot: str | None = None) -> list:
     """Every scenario one file defines, fully checked; raises ``ScenarioErrors``/``ScenarioError``."""
     from bench.scenario.loader import load_file
 
-    scenarios = load_file(path, list(roots))
+    scenarios = with_robot(load_file(path, list(roots)), robot)
     errors = robot_problems(scenarios)
     if errors:
         raise ScenarioErrors(errors)

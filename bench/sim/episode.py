@@ -56,6 +56,7 @@ import numpy as np
 
 from bench.controllers.base import Observation
 from bench.faults import FaultContext
+from bench.sim.contacts import CONTACT_DIST_M, ContactTable
 from bench.sim.interrupts import UserInterrupts, raised_reason
 from bench.sim.events import Event, compile_forces, compile_masses, fault_events
 from bench.sim.faults import compile_faults
@@ -64,8 +65,6 @@ from bench.world.payloads import PAYLOAD_CONTYPE, PAYLOAD_RGBA
 
 #: A fall: trunk origin closer to the ground under it than this share of the nominal height.
 FALL_HEIGHT_FRACTION = 0.4
-#: Contact distance below which a foot counts as touching, m.
-CONTACT_DIST_M = 0.002
 #: Samples per metre of the ground-level table used by the per-tick fall check.
 TABLE_PER_M = 100
 #: MuJoCo warnings that end an episode as an error (the state can no longer be trusted).
@@ -285,6 +284,17 @@ class EpisodeResult:
     mujoco_warnings: list[str] = field(default_factory=list)   # MuJoCo's messages, fatal or not
     interruptible: bool = False                                # whether the watchdog could run
     watchdog_restored: list[str] = field(default_factory=list)  # watchdog state a controller changed, put back
+    cpu_time_s: float = 0.0    # this process's CPU time over the same span as wall_time_s (the tick loop)
+
+
+def _as_slice(idx):
+    """``slice`` equal to an index array when it is contiguous and increasing, else the array itself."""
+    idx = np.asarray(idx, dtype=np.int64)
+    if len(idx) and np.array_equal(idx, np.arange(idx[0], idx[0] + len(idx))):
+        return slice(int(idx[0]), int(idx[0]) + len(idx))
+    return idx
+
+
 
 
 def run_episode(world, scenario, controller, robot, *, seed: int | None = None,
@@ -351,17 +361,21 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     qa, va = world.root_qpos_adr, world.root_dof_adr
     jq, jv, act = world.joint_qpos_adr, world.joint_dof_adr, world.actuator_ids
     feet_sites = world.foot_site_ids
-    carried = world.carried_body_ids
-    is_terrain = np.zeros(m.ngeom, dtype=bool)
-    is_terrain[world.terrain_geom_ids] = True
-    is_fall = np.zeros(m.ngeom, dtype=bool)
-    is_fall[world.fall_geom_ids] = True
-    foot_of_geom = np.full(m.ngeom, -1, dtype=int)
-    foot_of_geom[world.foot_geom_ids] = np.arange(F)
+    contacts = ContactTable(m.ngeom, world.terrain_geom_ids, world.foot_geom_ids, world.fall_geom_ids)
     iq, ig, ia = world.imu_quat_adr, world.imu_gyro_adr, world.imu_accel_adr
     cmd_times = np.array([c.at for c in scenario.commands] or [0.0])
     cmd_vals = np.array([[c.vx, c.vy, c.yaw_rate] for c in scenario.commands] or [[0.0, 0.0, 0.0]])
     cmd_index = np.clip(np.searchsorted(cmd_times, np.arange(n_ticks) * ctrl_dt + 1e-9, side="right") - 1, 0, None)
+    cmd_rows = cmd_vals[cmd_index]
+    # Payload mass changes, tick -> [(payload index, new mass)]: the schedules evaluated once, up front.
+    mass_changes: dict[int, list[tuple[int, float]]] = {}
+    for ms in mass_scheds:
+        before = payload_mass[ms.payload_index]
+        for k in range(n_ticks):
+            mass = ms.mass_at(k * ctrl_dt)
+            if mass != before:
+                mass_changes.setdefault(k, []).append((ms.payload_index, mass))
+                before = mass
     fall_z = FALL_HEIGHT_FRACTION * world.robot.nominal_height
     # Ground level along the path at 1 cm for the per-tick fall check (the exact query is vectorised after).
     ground_at = world.terrain.ground_table(TABLE_PER_M).at
@@ -369,9 +383,26 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     applied_buf = np.zeros(J)
     f_active = np.zeros(len(forces.k0), dtype=bool)
     R = np.zeros(9)
-    cf = np.zeros(6)
-    frame = np.zeros((3, 3))
     ext_now = np.zeros(3)
+    has_forces = not forces.empty
+
+    # Views into MjData resolved once (its arrays never move), slices where the ids are contiguous.
+    qpos, qvel, sensordata = d.qpos, d.qvel, d.sensordata
+    s_quat, s_gyro, s_accel = sensordata[iq:iq + 4], sensordata[ig:ig + 3], sensordata[ia:ia + 3]
+    jq_s, jv_s = _as_slice(jq), _as_slice(jv)   # indexed each tick: a slice gives a view, an index array a copy
+    q_base, v_base = qpos[qa:qa + 3], qvel[va:va + 3]
+    xquat_trunk = d.xquat[trunk]
+    feet_s, act_s = _as_slice(feet_sites), _as_slice(act)
+    site_xpos, xipos = d.site_xpos, d.xipos
+    warn_number = d.warning.number
+    no_warnings = bytes(warn_number.nbytes)   # a bytes comparison is cheaper than a numpy reduction
+    # Per-tick copies: qpos, qvel and body COMs are copied whole; what the trace wants from them
+    # (joints, base, centre of mass) is taken out after the episode, vectorised.
+    R_qpos, R_quat, R_feet, R_contact = A["qpos"], A["base_quat"], A["foot_pos"], A["foot_contact"]
+    R_payload, R_torque, R_limit, R_ext = A["payload_mass"], A["joint_torque"], A["torque_limit"], A["ext_force"]
+    R_force = A["foot_force"]
+    R_qvel = np.zeros((n_ticks, m.nv))
+    R_xipos = np.zeros((n_ticks, m.nbody, 3))
 
     # --- initial state -------------------------------------------------------------
     d.qpos[:] = world.initial_qpos
@@ -436,6 +467,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
             d.xfrc_applied[trunk, 3:] += np.cross(pt - d.xipos[trunk], f)
             ext_now[:] += f
 
+    cpu0 = time.process_time()
     wall0 = time.perf_counter()
     step = 0
     physics_fault = False  # MuJoCo may have reset d (and d.time) on the way: time is counted in steps
@@ -444,49 +476,45 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
         for k in range(n_ticks):
             t = k * ctrl_dt
             # Timed changes to the world the controller is not told about.
-            for ms in mass_scheds:
-                mass = ms.mass_at(t)
-                if mass != payload_mass[ms.payload_index]:
-                    p = world.payloads[ms.payload_index]
+            if k in mass_changes:
+                for i, mass in mass_changes[k]:
+                    p = world.payloads[i]
                     _set_payload_mass(m, p, mass)
                     visible = mass > 0
-                    m.geom_contype[p.geom_id] = payload_geom_contype[ms.payload_index] if visible else 0
-                    m.geom_rgba[p.geom_id, 3] = base_rgba_alpha[ms.payload_index] if visible else 0.0
-                    payload_mass[ms.payload_index] = mass
+                    m.geom_contype[p.geom_id] = payload_geom_contype[i] if visible else 0
+                    m.geom_rgba[p.geom_id, 3] = base_rgba_alpha[i] if visible else 0.0
+                    payload_mass[i] = mass
             if k == faults.next_tick:   # faults switching on (derated limits, a lock's constraint...)
                 faults.switch(k)
 
-            apply_forces(step)
+            if has_forces:
+                apply_forces(step)
             mujoco.mj_step1(m, d)
 
             # Observation: sensors, joints, contacts of this instant.
             obs.t = t
-            obs.imu_quat[:] = d.sensordata[iq:iq + 4]
-            obs.imu_gyro[:] = d.sensordata[ig:ig + 3]
-            obs.imu_accel[:] = d.sensordata[ia:ia + 3]
-            obs.joint_pos[:] = d.qpos[jq]
-            obs.joint_vel[:] = d.qvel[jv]
-            obs.privileged.base_pos[:] = d.qpos[qa:qa + 3]
-            obs.privileged.base_linvel[:] = d.qvel[va:va + 3]
-            obs.foot_contact[:] = False
-            fell_contact = False
-            foot_con = None
-            if d.ncon:
-                # Contacts with the ground, classified with array lookups (no per-contact Python work).
-                geoms = d.contact.geom
-                g1, g2 = geoms[:, 0], geoms[:, 1]
-                t1 = is_terrain[g1]
-                other = np.where(t1, g2, g1)
-                ground_con = t1 | is_terrain[g2]
-                foot = foot_of_geom[other]
-                foot_con = np.flatnonzero(ground_con & (foot >= 0))
-                touching = foot_con[d.contact.dist[foot_con] < CONTACT_DIST_M]
-                obs.foot_contact[foot[touching]] = True
-                fell_contact = bool(np.any(ground_con & is_fall[other] & (d.contact.dist < 0)))
-            _record_state(A, k, t, world, d, obs, payload_mass, carried, feet_sites)
+            obs.imu_quat[:] = s_quat
+            obs.imu_gyro[:] = s_gyro
+            obs.imu_accel[:] = s_accel
+            obs.joint_pos[:] = qpos[jq_s]
+            obs.joint_vel[:] = qvel[jv_s]
+            obs.privileged.base_pos[:] = q_base
+            obs.privileged.base_linvel[:] = v_base
+            foot_contact = obs.foot_contact
+            foot_contact[:] = False
+            fell_contact = contacts.classify(d, foot_contact)
+            # The true state of this instant (before any sensor fault).
+            R_qpos[k] = qpos
+            R_qvel[k] = qvel
+            R_quat[k] = xquat_trunk
+            R_feet[k] = site_xpos[feet_s]
+            R_xipos[k] = xipos
+            R_contact[k] = foot_contact
+            if P:
+                R_payload[k] = payload_mass
             if faults.observers:
                 faults.observe(obs)
-            command[:] = cmd_vals[cmd_index[k]]
+            command[:] = cmd_rows[k]
 
             # The controller.
             ctrl_obs = _refresh_controller_copy(obs, ctrl_obs)
@@ -548,22 +576,26 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
             applied = applied_buf
             if faults.appliers:
                 faults.apply(applied)
-            d.ctrl[act] = applied
+            d.ctrl[act_s] = applied
 
             mujoco.mj_step2(m, d)
             step += 1
 
             # Record the row of this instant (contact forces come from this step's solve).
-            _record_effort(A, k, world, d, command, applied, limit_now, ext_now, foot_con, foot_of_geom, is_terrain,
-                           cf, frame)
+            R_torque[k] = applied
+            R_limit[k] = limit_now
+            if has_forces:
+                R_ext[k] = ext_now
+            contacts.forces(m, d, R_force[k])
 
             for _ in range(substeps - 1):
-                apply_forces(step)
+                if has_forces:
+                    apply_forces(step)
                 mujoco.mj_step(m, d)
                 step += 1
 
             # End conditions.
-            if d.warning.number.any() and d.warning.number[fatal_idx].any():
+            if warn_number.tobytes() != no_warnings and warn_number[fatal_idx].any():
                 w = next(w for w in FATAL_WARNINGS if d.warning[w].number > 0)
                 # After a bad acceleration MuJoCo resets the data (d.time too): the time is counted here.
                 sim_t = step * dt
@@ -573,7 +605,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 physics_fault = True
                 k += 1
                 break
-            if not math.isfinite(d.qpos.sum() + d.qvel.sum()):
+            if not math.isfinite(sum(qpos.tolist()) + sum(qvel.tolist())):  # any NaN or infinity makes it so
                 status, reason = "error", (f"non-finite state (NaN or infinity in qpos/qvel) at tick {k} "
                                            f"(t={t:.3f}-{step * dt:.3f} s)")
                 physics_fault = True
@@ -593,11 +625,13 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
         status, reason = "error", f"MuJoCo error at tick {k} (t={k * ctrl_dt:.3f} s): {_one_line(exc)}"
         physics_fault = True
     wall = time.perf_counter() - wall0
+    cpu = time.process_time() - cpu0
 
     n = k
     trace.truncate(n)
     if n:
         A = trace.arrays
+        _derive_rows(A, n, ctrl_dt, world, m, R_qvel[:n], R_xipos[:n], cmd_rows[:n])
         A["terrain_height"][:] = world.terrain.height_at(A["base_pos"][:, 0], A["base_pos"][:, 1])
     stats = {}
     watchdog.call_limit_s = watchdog.tick_limit_s
@@ -631,7 +665,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     })
     sim_time = float(step * dt) if physics_fault else float(d.time)
     return EpisodeResult(trace, status, reason, sim_time_s=sim_time, wall_time_s=wall,
-                         events=events, controller_stats=stats)
+                         events=events, controller_stats=stats, cpu_time_s=cpu)
 
 
 def _refresh_controller_copy(src: Observation, dst: Observation) -> Observation:
@@ -664,48 +698,23 @@ def _set_payload_mass(m: mujoco.MjModel, p, mass: float) -> None:
         b = int(m.body_parentid[b])
 
 
-def _record_state(A, k, t, world, d, obs, payload_mass, carried, feet_sites) -> None:
-    """The true state at this instant (after ``mj_step1``, before any sensor fault)."""
-    m = world.model
-    va, trunk = world.root_dof_adr, world.trunk_body_id
-    A["t"][k] = t
-    A["qpos"][k] = d.qpos
-    A["base_pos"][k] = obs.privileged.base_pos
-    A["base_quat"][k] = d.xquat[trunk]
-    A["base_linvel"][k] = obs.privileged.base_linvel
-    A["base_angvel"][k] = d.qvel[va + 3:va + 6]   # free-joint angular velocity is in the body frame
-    A["joint_pos"][k] = obs.joint_pos
-    A["joint_vel"][k] = obs.joint_vel
-    A["foot_pos"][k] = d.site_xpos[feet_sites]
-    A["foot_contact"][k] = obs.foot_contact
-    A["payload_mass"][k] = payload_mass
-    mass = m.body_mass[carried]
-    total = float(mass.sum())
-    A["total_mass"][k] = total
-    A["com_pos"][k] = (mass[:, None] * d.xipos[carried]).sum(axis=0) / total
-
-
-def _record_effort(A, k, world, d, command, applied, limit_now, ext_now, foot_con, foot_of_geom, is_terrain, cf,
-                   frame) -> None:
-    """Torques, command, disturbance and ground reaction forces of this instant (after ``mj_step2``)."""
-    m = world.model
-    A["joint_torque"][k] = applied
-    A["torque_limit"][k] = limit_now
-    A["command"][k] = command
-    A["ext_force"][k] = ext_now
-    ff = A["foot_force"][k]
-    ff[:] = 0.0
-    if foot_con is None or not len(foot_con):
-        return
-    geoms = d.contact.geom
-    frames = d.contact.frame
-    for c in foot_con:
-        g2 = geoms[c, 1]
-        # The contact force acts on geom2 in the contact frame (normal from geom1 to geom2).
-        if foot_of_geom[g2] >= 0:
-            sign, foot = 1.0, foot_of_geom[g2]
-        else:
-            sign, foot = -1.0, foot_of_geom[geoms[c, 0]]
-        mujoco.mj_contactForce(m, d, c, cf)
-        frame[:] = frames[c].reshape(3, 3)
-        ff[foot] += sign * (frame.T @ cf[:3])
+def _derive_rows(A, n, ctrl_dt, world, m, qvel, xipos, commands) -> None:
+    """Fill the trace columns that follow from the per-tick copies (``n`` rows; exact copies and the
+    same arithmetic as row by row, so the values are those a per-tick computation gives)."""
+    qa, va = world.root_qpos_adr, world.root_dof_adr
+    qpos = A["qpos"]
+    A["t"][:] = np.arange(n) * ctrl_dt
+    A["base_pos"][:] = qpos[:, qa:qa + 3]
+    A["joint_pos"][:] = qpos[:, world.joint_qpos_adr]
+    A["base_linvel"][:] = qvel[:, va:va + 3]
+    A["base_angvel"][:] = qvel[:, va + 3:va + 6]   # free-joint angular velocity is in the body frame
+    A["joint_vel"][:] = qvel[:, world.joint_dof_adr]
+    A["command"][:] = commands
+    # Masses of robot and carried loads per tick: robot bodies are fixed, loads as recorded.
+    robot = world.robot_body_ids
+    mass = np.empty((n, len(robot) + len(world.payloads)))
+    mass[:, :len(robot)] = m.body_mass[robot]
+    mass[:, len(robot):] = A["payload_mass"]
+    total = mass.sum(axis=1)
+    A["total_mass"][:] = total
+    A["com_pos"][:] = (mass[:, :, None] * xipos[:, world.carried_body_ids]).sum(axis=1) / total[:, None]
