@@ -100,6 +100,13 @@ def test_no_floating_base_and_closed_chains_are_refused(tmp_path):
     assert not (tmp_path / "m.yaml").exists()
 
 
+@pytest.mark.parametrize("robot", ["quad12", "quad30"])
+def test_bundled_robots_check_clean(robot):
+    ok = _bench("robot", "check", robot)
+    assert ok.returncode == 0, ok.stdout + ok.stderr
+    assert "checks agree" in ok.stdout and "DISAGREES" not in ok.stdout
+
+
 def test_check_exit_codes(tmp_path):
     ok = _bench("robot", "check", "quad12")
     assert ok.returncode == 0, ok.stdout + ok.stderr

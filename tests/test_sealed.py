@@ -117,33 +117,42 @@ def test_in_process_controller_cannot_change_what_the_runner_records(write_scena
                                                             honest["trace_sha256"])
 
 
-def test_the_runner_refreshes_every_observation_field_into_the_controllers_copy():
+def test_the_runner_refreshes_every_observation_field_into_the_controllers_copy(stand):
+    """Each tick the controller's observation holds this instant's values, even after it broke its own."""
     import dataclasses
 
     import numpy as np
 
     from bench.controllers.base import Observation
-    from bench.sim.episode import _refresh_controller_copy
+    from bench.controllers.simple import JointPDController
 
-    src = Observation.zeros(12, 4)
-    src.t = 1.25
-    for f in dataclasses.fields(Observation):
-        if f.name not in ("t", "privileged", "foot_contact"):
-            getattr(src, f.name)[:] = np.arange(1, 1 + getattr(src, f.name).size)
-    src.foot_contact[:] = [True, False, True, True]
-    src.privileged.base_pos[:] = (1, 2, 3)
-    src.privileged.base_linvel[:] = (4, 5, 6)
-    dst = Observation.zeros(12, 4)
-    assert _refresh_controller_copy(src, dst) is dst
-    for f in dataclasses.fields(Observation):
-        if f.name == "privileged":
-            for g in dataclasses.fields(type(src.privileged)):
-                assert np.array_equal(getattr(dst.privileged, g.name), getattr(src.privileged, g.name)), g.name
-        else:
-            assert np.array_equal(getattr(dst, f.name), getattr(src, f.name)), f.name
-    dst.joint_pos = np.zeros(3)   # broken by the controller: it gets a whole new copy
-    fresh = _refresh_controller_copy(src, dst)
-    assert fresh is not dst and np.array_equal(fresh.joint_pos, src.joint_pos)
+    seen = []
+
+    class Breaker(JointPDController):
+        def step(self, obs, command):
+            seen.append((obs.t, obs.joint_pos.copy(), obs.joint_vel.copy(), obs.foot_contact.copy(),
+                         obs.imu_quat.copy(), obs.privileged.base_pos.copy()))
+            tau = super().step(obs, command)
+            if len(seen) == 3:
+                obs.joint_pos = np.zeros(3)     # a wrong shape: the runner must hand over a new observation
+            if len(seen) == 6:
+                obs.privileged = None           # no privileged part: likewise
+            return tau
+
+    from bench.sim.episode import run_episode
+
+    man = manifest_for(stand)
+    ep = run_episode(build_world(stand, man), stand, Breaker(), NominalRobot(man), seed=0)
+    tr = ep.trace
+    assert ep.status == "completed" and len(seen) == len(tr["t"]) > 8
+    for k, (t, q, v, c, quat, pos) in enumerate(seen):
+        assert t == tr["t"][k]
+        assert np.array_equal(q, tr["joint_pos"][k]) and np.array_equal(v, tr["joint_vel"][k])
+        assert np.array_equal(c, tr["foot_contact"][k]) and np.array_equal(pos, tr["base_pos"][k])
+        assert np.array_equal(quat, tr["base_quat"][k])    # the IMU sits at the trunk origin, aligned
+    # every field of the observation is one the runner fills (a new field must be added to the runner)
+    assert {f.name for f in dataclasses.fields(Observation)} == {
+        "t", "imu_quat", "imu_gyro", "imu_accel", "joint_pos", "joint_vel", "foot_contact", "privileged"}
 
 
 def test_in_process_controller_can_still_reach_the_simulation_known_limit(stand):
@@ -369,3 +378,14 @@ def test_naming_a_sealed_module_runs_none_of_its_code_in_the_bench_process(stand
     assert factory.sealed_spec == "tamper_pkg.ctrl:Ctrl"
     with pytest.raises(registry.ControllerNotFound, match="cannot find module 'tamper_pkg.nope'"):
         registry.resolve("sealed:tamper_pkg.nope:Ctrl")
+
+
+def test_sealed_flag_is_the_sealed_prefix(tmp_path):
+    env = {**os.environ, "PYTHONPATH": str(REPO)}
+    p = subprocess.run([sys.executable, "-m", "bench", "run", str(STAND_1S), "--sealed", "--controller", "joint-pd",
+                        "--out", str(tmp_path / "out"), "--workers", "1", "--no-plots", "--no-history"],
+                       capture_output=True, text=True, env=env)
+    assert p.returncode in (0, 1), p.stderr
+    result = json.loads(next((tmp_path / "out").glob("*/result.json")).read_text())
+    assert result["controller"] == "sealed:joint-pd"
+    assert result["fingerprint_parts"]["controller"] != ""

@@ -11,6 +11,7 @@ standing on four feet, mid-trot with feet in the air, and lying on the trunk.
 from __future__ import annotations
 
 import textwrap
+from pathlib import Path
 
 import mujoco
 import numpy as np
@@ -135,3 +136,23 @@ def test_force_sign_follows_which_side_the_foot_is_on():
     assert table.table[cls[2]][cls[0]][1] is True
     assert table.table[cls[0]][cls[3]] is None                   # ground and an unrelated geom
     assert table.table[cls[1]][cls[3]] is None                   # foot touching a non-ground geom
+
+
+def test_fall_reason_names_the_part_and_what_it_touched():
+    """The adaptive stack falls with frozen encoders; the reason says which fall geom touched which ground geom."""
+    import re
+
+    from bench.controllers import registry
+    from bench.robot.model import NominalRobot
+    from bench.scenario import load_scenarios
+    from bench.sim.episode import run_episode
+    from bench.world.build import build_world, manifest_for
+
+    sc = load_scenarios([str(Path(__file__).resolve().parents[1] / "scenarios/faults/frozen-encoders.yaml")])[0]
+    man = manifest_for(sc)
+    _, ctrl = registry.make("force-qp-l1")
+    ep = run_episode(build_world(sc, man), sc, ctrl, NominalRobot(man), seed=sc.seed)
+    assert ep.status == "fell"
+    m = re.search(r"the (\w+) \(geom (\w+)\) touched the ground \(geom (\w+)\)", ep.reason)
+    assert m, ep.reason
+    assert m.group(2) in man.fall_geoms

@@ -18,7 +18,11 @@ def register(sub) -> None:
                                    "Exit 0 when all passed, 1 when any failed or errored, 2 on invalid input.")
     p.add_argument("paths", nargs="+", metavar="PATH", help="scenario file or folder")
     p.add_argument("--controller", default=DEFAULT_CONTROLLER, metavar="NAME",
-                   help=f"registered name, entry point or package.module:attribute (default {DEFAULT_CONTROLLER})")
+                   help=f"registered name, entry point, package.module:attribute, exec:PROGRAM ARGS or "
+                        f"sealed:NAME (default {DEFAULT_CONTROLLER})")
+    p.add_argument("--sealed", action="store_true",
+                   help="run a Python controller in a child process of its own (the same as "
+                        "--controller sealed:NAME): it cannot reach the world or the scoring objects")
     p.add_argument("--out", default="bench-results", metavar="DIR", help="results folder (default bench-results/)")
     p.add_argument("--seed", type=int, default=None, metavar="N", help="override every scenario's seed")
     p.add_argument("--root", action="append", default=[], metavar="DIR",
@@ -96,6 +100,8 @@ def run(args) -> int:
     if scenarios is None:
         return 2
     limits = EpisodeLimits(tick_timeout_s=args.tick_timeout, episode_timeout_s=args.episode_timeout)
+    if args.sealed and not args.controller.startswith(("sealed:", "exec:")):
+        args.controller = f"sealed:{args.controller}"
     plan = make_plan(scenarios, controller=args.controller, limits=limits, seed=args.seed, only=args.only,
                      where=" ".join(args.paths))
     out = Path(args.out)

@@ -107,17 +107,33 @@ class BaselineSink:
 
 
 class ProgressSink:
-    """The one-line progress display of a long run (on a terminal only)."""
+    """Progress of a long run: a redrawn bar on a terminal; elsewhere (a CI log, a pipe) one flushed line
+    per finished episode on stdout, so that a log shows the run as it goes rather than at the end."""
 
-    def __init__(self, total: int) -> None:
+    def __init__(self, total: int, stream=None) -> None:
+        import sys
+
         from bench.execute.progress import Progress
 
         self.progress = Progress(total)
+        self.total = total
+        self.done = 0
+        self.stream = stream if stream is not None else sys.stdout
+        self.lines = not self.progress.enabled
 
     def on_result(self, episode, outcome) -> None:
         from bench.report.record import as_record
 
-        self.progress.update(passed=as_record(outcome.result).passed)
+        record = as_record(outcome.result)
+        self.progress.update(passed=record.passed)
+        self.done += 1
+        if self.lines:
+            from bench.report.tables import deciding_text
+
+            width = len(str(self.total))
+            self.stream.write(f"[{self.done:>{width}}/{self.total}] {record.scenario}  {record.status}  "
+                              f"{deciding_text(record)}  ({record.wall_time_s:.1f} s)\n")
+            self.stream.flush()
 
     def close(self) -> None:
         self.progress.close()

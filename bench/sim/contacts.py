@@ -55,6 +55,7 @@ class ContactTable:
                 sign, force_foot = (1.0, f2) if f2 >= 0 else (-1.0, f1)
                 row.append((foot, fall, sign, force_foot) if foot >= 0 or fall else None)
             self.table.append(row)
+        self.is_ground, self.is_fall = is_ground, is_fall
         self._found: list[tuple[int, float, int]] = []   # (contact, sign, foot) of this instant's foot contacts
         self._cf = np.zeros(6)
         n_feet = len(foot_geom_ids)
@@ -85,6 +86,20 @@ class ContactTable:
                 if dist[i] < CONTACT_DIST_M:
                     foot_contact[foot] = True
         return fell
+
+    def fall_parts(self, m: mujoco.MjModel, d: mujoco.MjData) -> str:
+        """Which part of the robot touched what, for the fall reason (called once, when the robot fell)."""
+        for i in range(d.ncon):
+            g1, g2 = (int(g) for g in d.contact.geom[i])
+            if d.contact.dist[i] >= 0:
+                continue
+            for ground, part in ((g1, g2), (g2, g1)):
+                if self.is_ground[ground] and self.is_fall[part]:
+                    body = mujoco.mj_id2name(m, mujoco.mjtObj.mjOBJ_BODY, int(m.geom_bodyid[part])) or "body"
+                    pname = mujoco.mj_id2name(m, mujoco.mjtObj.mjOBJ_GEOM, part) or f"geom {part}"
+                    gname = mujoco.mj_id2name(m, mujoco.mjtObj.mjOBJ_GEOM, ground) or f"geom {ground}"
+                    return f"the {body} (geom {pname}) touched the ground (geom {gname})"
+        return "a fall geom touched the ground"
 
     def forces(self, m: mujoco.MjModel, d: mujoco.MjData, out: np.ndarray) -> None:
         """Write each foot's summed contact force (world axes) into ``out`` (F, 3, zeros), if any foot touches."""

@@ -416,10 +416,10 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     except mujoco.FatalError as exc:
         return EpisodeResult(trace.__class__({k: v[:0] for k, v in A.items()}), "error",
                              f"MuJoCo error at t=0.000 s, before the first tick: {_one_line(exc)}", 0.0, 0.0, events)
-    obs = Observation.zeros(J, F)
-    command = np.zeros(3)
-    # The controller gets its own observation and command, refreshed from these every tick: what it does
-    # to them (np.clip(command, ..., out=command), swapping an array) cannot change what is recorded.
+    # The runner's own contact flags (recorded); the controller gets an observation and a command of its
+    # own, filled from MjData every tick: what it does to them (np.clip(command, ..., out=command),
+    # swapping an array) cannot change what is recorded, and is overwritten at the next tick.
+    foot_contact = np.zeros(F, dtype=bool)
     ctrl_obs, ctrl_command = Observation.zeros(J, F), np.zeros(3)
     status, reason = "completed", None
     ctrl_ms = A["controller_ms"]
@@ -491,18 +491,22 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 apply_forces(step)
             mujoco.mj_step1(m, d)
 
-            # Observation: sensors, joints, contacts of this instant.
-            obs.t = t
-            obs.imu_quat[:] = s_quat
-            obs.imu_gyro[:] = s_gyro
-            obs.imu_accel[:] = s_accel
-            obs.joint_pos[:] = qpos[jq_s]
-            obs.joint_vel[:] = qvel[jv_s]
-            obs.privileged.base_pos[:] = q_base
-            obs.privileged.base_linvel[:] = v_base
-            foot_contact = obs.foot_contact
+            # Contacts of this instant, then the controller's observation: sensors, joints, contacts.
             foot_contact[:] = False
             fell_contact = contacts.classify(d, foot_contact)
+            try:
+                ctrl_obs.t = t
+                ctrl_obs.imu_quat[:] = s_quat
+                ctrl_obs.imu_gyro[:] = s_gyro
+                ctrl_obs.imu_accel[:] = s_accel
+                ctrl_obs.joint_pos[:] = qpos[jq_s]
+                ctrl_obs.joint_vel[:] = qvel[jv_s]
+                ctrl_obs.foot_contact[:] = foot_contact
+                ctrl_obs.privileged.base_pos[:] = q_base
+                ctrl_obs.privileged.base_linvel[:] = v_base
+            except Exception:  # noqa: BLE001 - the controller replaced an array or the privileged part
+                ctrl_obs = _fresh_observation(J, F, t, s_quat, s_gyro, s_accel, qpos[jq_s], qvel[jv_s],
+                                              foot_contact, q_base, v_base)
             # The true state of this instant (before any sensor fault).
             R_qpos[k] = qpos
             R_qvel[k] = qvel
@@ -512,13 +516,11 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
             R_contact[k] = foot_contact
             if P:
                 R_payload[k] = payload_mass
-            if faults.observers:
-                faults.observe(obs)
-            command[:] = cmd_rows[k]
+            if faults.observers:   # sensor faults act on what the controller sees, never on the record
+                faults.observe(ctrl_obs)
+            ctrl_command[:] = cmd_rows[k]
 
             # The controller.
-            ctrl_obs = _refresh_controller_copy(obs, ctrl_obs)
-            ctrl_command[:] = command
             c0 = watchdog.call_start = time.perf_counter()
             try:
                 tau = controller.step(ctrl_obs, ctrl_command)
@@ -614,7 +616,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
             z = d.qpos[qa + 2]
             ground = ground_at(d.qpos[qa])
             if fell_contact or z - ground < fall_z:
-                why = "trunk or leg touched the ground" if fell_contact else (
+                why = contacts.fall_parts(m, d) if fell_contact else (
                     f"trunk {z - ground:.3f} m above the ground, under the fall threshold {fall_z:.3f} m")
                 status, reason = "fell", f"fell at t={t:.3f} s: {why}"
                 k += 1
@@ -668,21 +670,20 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                          events=events, controller_stats=stats, cpu_time_s=cpu)
 
 
-def _refresh_controller_copy(src: Observation, dst: Observation) -> Observation:
-    """Copy the runner's observation into the controller's (in place); a new one if the controller broke it."""
-    try:
-        dst.t = src.t
-        dst.imu_quat[:] = src.imu_quat
-        dst.imu_gyro[:] = src.imu_gyro
-        dst.imu_accel[:] = src.imu_accel
-        dst.joint_pos[:] = src.joint_pos
-        dst.joint_vel[:] = src.joint_vel
-        dst.foot_contact[:] = src.foot_contact
-        dst.privileged.base_pos[:] = src.privileged.base_pos
-        dst.privileged.base_linvel[:] = src.privileged.base_linvel
-        return dst
-    except Exception:  # noqa: BLE001 - an array replaced by one of another shape, or no longer an array
-        return _refresh_controller_copy(src, Observation.zeros(len(src.joint_pos), len(src.foot_contact)))
+def _fresh_observation(J: int, F: int, t: float, quat, gyro, accel, joint_pos, joint_vel, foot_contact, base_pos,
+                       base_linvel) -> Observation:
+    """A new controller observation (the controller broke its own); filled from this tick's values."""
+    o = Observation.zeros(J, F)
+    o.t = t
+    o.imu_quat[:] = quat
+    o.imu_gyro[:] = gyro
+    o.imu_accel[:] = accel
+    o.joint_pos[:] = joint_pos
+    o.joint_vel[:] = joint_vel
+    o.foot_contact[:] = foot_contact
+    o.privileged.base_pos[:] = base_pos
+    o.privileged.base_linvel[:] = base_linvel
+    return o
 
 
 def _set_payload_mass(m: mujoco.MjModel, p, mass: float) -> None:
