@@ -111,3 +111,13 @@ payloads:
     assert mujoco.mj_name2id(model, mujoco.mjtObj.mjOBJ_BODY, "payload_crate") >= 0
     assert sum(1 for i in range(model.ngeom) if "step" in (mujoco.mj_id2name(model, mujoco.mjtObj.mjOBJ_GEOM, i) or "")) == 3
     assert mujoco.mj_getTotalmass(model) == pytest.approx(14.0, rel=1e-6)
+
+
+def test_list_descriptions_are_cut_at_a_word_with_an_ellipsis():
+    from bench.cli.listing import shorten
+
+    assert shorten("a short one", 40) == "a short one"
+    assert shorten("the quick brown fox jumps over", 16) == "the quick brown\u2026"
+    assert shorten("the quick brown fox jumps over", 13) == "the quick\u2026"
+    long_word = shorten("abcdefghijklmnopqrstuvwxyz", 10)
+    assert long_word == "abcdefghi\u2026" and len(long_word) == 10

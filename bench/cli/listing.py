@@ -57,6 +57,16 @@ def run(args) -> int:
             return 2
         for sc in scenarios:
             desc = " ".join((sc.description or "").split())
-            print(f"{sc.id:<36} {desc[:100]}")
+            print(f"{sc.id:<36} {shorten(desc, 100)}")
     return 0
+
+
+def shorten(text: str, width: int) -> str:
+    """``text`` cut at a word boundary to at most ``width`` characters, with an ellipsis when cut."""
+    if len(text) <= width:
+        return text
+    cut = text[:width - 1]
+    if text[width - 1] != " " and " " in cut:   # the cut falls inside a word: drop that word
+        cut = cut[:cut.rfind(" ")]
+    return cut.rstrip(" ,;:.-") + "\u2026"
 ORDER = 30

@@ -41,6 +41,9 @@ def register(sub) -> None:
                         "this scenario, seed and controller, and its trace.npz loads) and run the rest; the "
                         "summary lists all")
     add_media_options(p)
+    p.add_argument("--clean", action="store_true",
+                   help="first remove results in --out that this run does not produce (earlier runs' scenario "
+                        "folders); without it they are kept and a warning names them")
     p.add_argument("--history", default=None, metavar="PATH",
                    help="history database to append this run to (default <out>/history.sqlite)")
     p.add_argument("--no-history", action="store_true", help="do not record this run in the history database")
@@ -117,6 +120,7 @@ def run(args) -> int:
             from bench.run.errors import InvalidInput
 
             raise InvalidInput(f"--out {out}: cannot create the results folder: {exc.strerror or exc}") from None
+        _stale_results(plan, out, clean=args.clean)
         if getattr(args, "resume", False):
             resumed = resume(plan, out)
             results.update(resumed.results)
@@ -178,3 +182,27 @@ def _media(args, out: Path, plan, results) -> None:
         return
     media_after_run(out, plan, results, video=video, video_dir=getattr(args, "video_dir", "videos"),
                     plots=getattr(args, "plots", True), opts=opts)
+
+
+def _stale_results(plan, out: Path, *, clean: bool) -> None:
+    """Result folders in ``out`` that this run will not write: removed with ``--clean``, else named in a warning.
+
+    Only folders that hold a ``result.json`` count (and are ever removed), so nothing else in ``out`` is touched.
+    """
+    import shutil
+
+    mine = {e.scenario.slug for e in plan.episodes}
+    stale = sorted(p for p in out.iterdir() if p.is_dir() and not p.is_symlink() and p.name not in mine
+                   and (p / "result.json").is_file())
+    if not stale:
+        return
+    if clean:
+        for p in stale:
+            shutil.rmtree(p, ignore_errors=True)
+        print(f"--clean: removed {len(stale)} earlier result folder{'s' if len(stale) != 1 else ''} from {out}/",
+              file=sys.stderr)
+        return
+    names = ", ".join(p.name for p in stale[:5]) + (f", +{len(stale) - 5} more" if len(stale) > 5 else "")
+    print(f"warning: {out}/ also holds {len(stale)} result folder{'s' if len(stale) != 1 else ''} from an earlier "
+          f"run that this run does not replace ({names}); summary.json lists only this run. Use --clean to remove "
+          f"them first, or a fresh --out folder", file=sys.stderr)
