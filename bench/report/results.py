@@ -14,17 +14,15 @@ import hashlib
 import json
 import math
 import os
-import re
 from pathlib import Path
 
-from bench.fileio import write_atomic  # noqa: F401 - re-exported
+from bench.fileio import remove_temp_files, write_atomic  # noqa: F401 - re-exported
 from bench.report.record import REQUIRED_KEYS, RecordError, RunRecord, as_record
 
 #: Keys every result.json has; a file without one of them is not a complete result.
 RESULT_KEYS = REQUIRED_KEYS
 #: Trace arrays that depend on the wall clock, left out of the trace digest.
 UNTIMED_EXCLUDE = ("controller_ms",)
-_TEMP = re.compile(r"^\..+\.[A-Za-z0-9_]+\.tmp$")
 
 
 def _clean(x):
@@ -175,20 +173,3 @@ def complete_result(out_dir: Path, slug: str, *, scenario_id: str | None = None,
     except Exception as exc:  # noqa: BLE001 - a torn or foreign file of any kind is just "not complete"
         return None, f"trace.npz unreadable: {type(exc).__name__}: {exc}"
     return result, ""
-
-
-def remove_temp_files(folder: Path) -> list[Path]:
-    """Delete the temporary files an interrupted atomic write left in ``folder`` (not below it)."""
-    removed = []
-    try:
-        entries = list(Path(folder).iterdir())
-    except OSError:
-        return removed
-    for p in entries:
-        if _TEMP.match(p.name) and p.is_file():
-            try:
-                p.unlink()
-                removed.append(p)
-            except OSError:
-                pass
-    return removed
