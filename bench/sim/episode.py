@@ -309,13 +309,41 @@ def run_episode(world, scenario, controller, robot, *, seed: int | None = None,
     with _CaptureMujocoWarnings(captured), UserInterrupts() as user:
         interruptible = watchdog.start()
         try:
-            ep = _run_episode(world, scenario, controller, robot, seed, limits, watchdog, captured, user)
+            try:
+                ep = _run_episode(world, scenario, controller, robot, seed, limits, watchdog, captured, user)
+            finally:
+                closed = _close_controller(controller, watchdog, limits, user)
         finally:
             watchdog.stop()
+    if closed and ep.status == "completed":   # a fault in close() counts when nothing else went wrong
+        ep.status, ep.reason = closed
     ep.mujoco_warnings = captured
     ep.interruptible = interruptible
     ep.watchdog_restored = watchdog.restored
     return ep
+
+
+def _close_controller(controller, watchdog: _Watchdog, limits: EpisodeLimits, user: UserInterrupts):
+    """Call the controller's optional ``close()`` once the episode is over, however it ended.
+
+    Returns None, or (status, reason) when ``close()`` hung or raised (a user's Ctrl-C still goes through).
+    """
+    close = getattr(controller, "close", None)
+    if not callable(close):
+        return None
+    watchdog.call_limit_s = watchdog.tick_limit_s
+    watchdog.call_start = time.perf_counter()
+    try:
+        close()
+        return None
+    except _ControllerHung as hung:
+        return "timeout", _timeout_reason(hung, limits, "in close()")
+    except BaseException as exc:  # noqa: BLE001 - the controller's fault, reported as its episode's
+        if user.by_user(exc):
+            raise
+        return "error", raised_reason(exc, "in close()")
+    finally:
+        watchdog.call_start = 0.0
 
 
 def _timeout_reason(hung: _ControllerHung, limits: EpisodeLimits, where: str) -> str:
