@@ -111,6 +111,50 @@ def _num(x: float) -> str:
     return repr(float(x))
 
 
+def handshake_header(robot, control_dt: float, extra_lines=()) -> str:
+    """The protocol's handshake for ``robot``; ``extra_lines`` go before ``end`` (programs ignore lines they
+    do not know)."""
+    man = robot.manifest
+    feet = [getattr(f, "name", str(f)) for f in man.feet]
+    lines = [
+        f"{PROTOCOL} {PROTOCOL_VERSION}",
+        f"robot {man.name}",
+        "joints " + " ".join([str(len(man.joints)), *man.joints]),
+        "feet " + " ".join([str(len(feet)), *feet]),
+        f"control_rate_hz {_num(1.0 / control_dt)}",
+        f"control_dt_s {_num(control_dt)}",
+        "torque_limits " + " ".join(map(_num, robot.torque_limits)),
+        "nominal_pose " + " ".join(map(_num, robot.nominal_pose)),
+        f"nominal_height_m {_num(robot.nominal_height)}",
+        f"mass_kg {_num(robot.mass_kg)}",
+        *extra_lines,
+        "end",
+    ]
+    return "\n".join(lines) + "\n"
+
+
+def observation_frame_size(n_joints: int, n_feet: int) -> int:
+    """Numbers in one observation, in protocol order: tick, time, command, IMU, joints, contacts, privileged."""
+    return 2 + 3 + 4 + 3 + 3 + 2 * n_joints + n_feet + 3 + 3
+
+
+def pack_observation(row: np.ndarray, k: int, obs, command) -> None:
+    """Write tick ``k``'s observation and command into ``row`` in protocol order (an ``OBS`` line's numbers)."""
+    J, F = len(obs.joint_pos), len(obs.foot_contact)
+    row[0] = k
+    row[1] = obs.t
+    row[2:5] = command
+    row[5:9] = obs.imu_quat
+    row[9:12] = obs.imu_gyro
+    row[12:15] = obs.imu_accel
+    row[15:15 + J] = obs.joint_pos
+    row[15 + J:15 + 2 * J] = obs.joint_vel
+    i = 15 + 2 * J
+    row[i:i + F] = obs.foot_contact
+    row[i + F:i + F + 3] = obs.privileged.base_pos
+    row[i + F + 3:i + F + 6] = obs.privileged.base_linvel
+
+
 def _signal_group(pgid: int, sig: int) -> bool:
     """Send ``sig`` to process group ``pgid``; False when the group is gone."""
     try:
@@ -350,30 +394,16 @@ class ExternalController:
         self._J, self._F = J, F
         self._stats = {}
         self._start()
-        feet = [getattr(f, "name", str(f)) for f in man.feet]
-        header = [
-            f"{PROTOCOL} {PROTOCOL_VERSION}",
-            f"robot {man.name}",
-            "joints " + " ".join([str(J), *man.joints]),
-            "feet " + " ".join([str(F), *feet]),
-            f"control_rate_hz {_num(1.0 / control_dt)}",
-            f"control_dt_s {_num(control_dt)}",
-            "torque_limits " + " ".join(map(_num, robot.torque_limits)),
-            "nominal_pose " + " ".join(map(_num, robot.nominal_pose)),
-            f"nominal_height_m {_num(robot.nominal_height)}",
-            f"mass_kg {_num(robot.mass_kg)}",
-            "end",
-        ]
         try:
-            self._handshake("\n".join(header) + "\n")
+            self._handshake(handshake_header(robot, control_dt))
         except BaseException:
             self._abort()
             raise
         self._tick = 0
         self._tau = np.zeros(J)
-        # One preallocated row of every observation number, in protocol order.
-        self._row = np.zeros(1 + 3 + 4 + 3 + 3 + 2 * J + F + 3 + 3)
-        self._fmt = "OBS %d " + " ".join(["%r"] * len(self._row)) + "\n"
+        # One preallocated row of every observation number, in protocol order (the tick first).
+        self._row = np.zeros(observation_frame_size(J, F))
+        self._fmt = "OBS %d " + " ".join(["%r"] * (len(self._row) - 1)) + "\n"
 
     def _handshake(self, header: str) -> None:
         when = "during the handshake"
@@ -389,20 +419,10 @@ class ExternalController:
         self.program_name = b" ".join(parts[2:]).decode("utf-8", "replace") or None
 
     def step(self, obs: Observation, command: np.ndarray) -> np.ndarray:
-        J, F, row, k = self._J, self._F, self._row, self._tick
-        row[0] = obs.t
-        row[1:4] = command
-        row[4:8] = obs.imu_quat
-        row[8:11] = obs.imu_gyro
-        row[11:14] = obs.imu_accel
-        row[14:14 + J] = obs.joint_pos
-        row[14 + J:14 + 2 * J] = obs.joint_vel
-        i = 14 + 2 * J
-        row[i:i + F] = obs.foot_contact
-        row[i + F:i + F + 3] = obs.privileged.base_pos
-        row[i + F + 3:i + F + 6] = obs.privileged.base_linvel
+        row, k = self._row, self._tick
+        pack_observation(row, k, obs, command)
         # %r of a float is its shortest round-trip text; foot contacts go out as 0.0/1.0.
-        text = self._fmt % (k, *row.tolist())
+        text = self._fmt % (k, *row.tolist()[1:])
         try:
             self._tau[:] = self._exchange(text, k, obs.t)
         except BaseException:

@@ -55,8 +55,10 @@ import weakref
 
 import numpy as np
 
+from bench.controllers.external import handshake_header as _protocol_header
 from bench.controllers.external import (
-    PROTOCOL, PROTOCOL_VERSION, ExternalControllerError, ExternalControllerTimeout,
+    PROTOCOL_VERSION, ExternalControllerError, ExternalControllerTimeout, observation_frame_size,
+    pack_observation,
 )
 
 PREFIX = "sealed:"
@@ -100,28 +102,6 @@ FRAME_FIELDS = ("t", "imu_quat", "imu_gyro", "imu_accel", "joint_pos", "joint_ve
                 "privileged.base_pos", "privileged.base_linvel")
 
 
-def observation_frame_size(n_joints: int, n_feet: int) -> int:
-    """Doubles in one bench -> program frame."""
-    return 2 + 3 + 4 + 3 + 3 + 2 * n_joints + n_feet + 3 + 3
-
-
-def pack_observation(row: np.ndarray, k: int, obs, command) -> None:
-    """Write tick ``k``'s observation and command into ``row`` (the order of an ``OBS`` line)."""
-    J, F = len(obs.joint_pos), len(obs.foot_contact)
-    row[0] = k
-    row[1] = obs.t
-    row[2:5] = command
-    row[5:9] = obs.imu_quat
-    row[9:12] = obs.imu_gyro
-    row[12:15] = obs.imu_accel
-    row[15:15 + J] = obs.joint_pos
-    row[15 + J:15 + 2 * J] = obs.joint_vel
-    i = 15 + 2 * J
-    row[i:i + F] = obs.foot_contact
-    row[i + F:i + F + 3] = obs.privileged.base_pos
-    row[i + F + 3:i + F + 6] = obs.privileged.base_linvel
-
-
 def unpack_observation(row: np.ndarray, obs, command: np.ndarray) -> int:
     """Fill ``obs`` and ``command`` in place from ``row``; return the tick number."""
     J, F = len(obs.joint_pos), len(obs.foot_contact)
@@ -139,31 +119,10 @@ def unpack_observation(row: np.ndarray, obs, command: np.ndarray) -> int:
     return int(row[0])
 
 
-def _num(x: float) -> str:
-    return repr(float(x))   # the shortest text that reads back to the same double
-
-
 def handshake_header(robot, control_dt: float, *, frames: str | None = FRAMES) -> str:
-    """The QBX 1 handshake for ``robot``, plus ``manifest_path`` and the ``frames`` offer (ignorable lines)."""
-    man = robot.manifest
-    feet = [getattr(f, "name", str(f)) for f in man.feet]
-    lines = [
-        f"{PROTOCOL} {PROTOCOL_VERSION}",
-        f"robot {man.name}",
-        "joints " + " ".join([str(len(man.joints)), *man.joints]),
-        "feet " + " ".join([str(len(feet)), *feet]),
-        f"control_rate_hz {_num(1.0 / control_dt)}",
-        f"control_dt_s {_num(control_dt)}",
-        "torque_limits " + " ".join(map(_num, robot.torque_limits)),
-        "nominal_pose " + " ".join(map(_num, robot.nominal_pose)),
-        f"nominal_height_m {_num(robot.nominal_height)}",
-        f"mass_kg {_num(robot.mass_kg)}",
-        f"manifest_path {man.manifest_path}",
-    ]
-    if frames:
-        lines.append(f"frames {frames}")
-    lines.append("end")
-    return "\n".join(lines) + "\n"
+    """The protocol's handshake for ``robot``, plus ``manifest_path`` and the ``frames`` offer (ignorable lines)."""
+    extra = [f"manifest_path {robot.manifest.manifest_path}"] + ([f"frames {frames}"] if frames else [])
+    return _protocol_header(robot, control_dt, extra)
 
 
 # -- process handling -----------------------------------------------------------------------------
