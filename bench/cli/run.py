@@ -158,7 +158,9 @@ def run(args) -> int:
         ok_groups = sum(t["verdict"] == "passed" for t in trial_summaries)
         line += f" (episodes); {ok_groups} of {len(trial_summaries)} trial scenarios passed"
     print(line)
-    plain_ok = all(results[e.index]["status"] == "passed" for e in plan.episodes if e.trial_of is None)
+    from bench.report.record import as_record
+
+    plain_ok = all(as_record(results[e.index]).passed for e in plan.episodes if e.trial_of is None)
     groups_ok = all(t["verdict"] == "passed" for t in trial_summaries)
     return 0 if plain_ok and groups_ok else 1
 
