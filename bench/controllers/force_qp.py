@@ -19,8 +19,12 @@ and the QP is::
 size, ``beta`` penalises change from the previous solution (which also makes
 the solution continuous in time). ``load_i`` in [0, 1] comes from the gait
 scheduler and unloads a foot smoothly before lift-off. The friction pyramid is
-in world axes (the controller does not know the terrain normal; use a ``mu``
-with margin).
+in world axes by default (a blind controller does not know the terrain normal; use a
+``mu`` with margin). :meth:`ForceQP.set_normals` turns each foot's pyramid to a given
+ground normal ``n`` (from a height scan): with ``t1, t2`` the images of the world x and y
+axes under the smallest rotation taking world z to ``n`` (Rodrigues' formula), the rows
+become ``|t1 . f| <= mu n . f`` and ``|t2 . f| <= mu n . f``. For ``n`` = world z they are
+the world-axis rows exactly. The normal-force bounds stay on the world z component.
 
 Solver: ``qpsolvers`` with back end ``solver`` (default ``"daqp"``, a dense
 dual active-set solver), given the previous solution as warm start
@@ -113,6 +117,8 @@ class _Pattern:
         self.ub[:] = _BIG_FORCE
         self.lb[:] = -_BIG_FORCE
         self.sense = np.zeros(nx + m_ineq, dtype=c_int)
+        self.mu = mu
+        self.normals = None   # per stance foot, the normal the pyramid rows were last written for (None: world z)
         self.problem = None   # the qpsolvers Problem over the same arrays, made when a wrapped solve needs it
 
 
@@ -175,6 +181,7 @@ class ForceQP:
             self._patterns[key] = _Pattern(feet, self._s2, self.mu, 2.0 * (self.alpha + self.beta),
                                            2.0 * self.beta)
         self._last_key = -1
+        self.normals = None                      # per foot ground normal (set_normals); None: world z
         self.f = np.zeros(self.nx)
         self.f_prev = np.zeros(self.nx)
         self.fallbacks = 0
@@ -191,6 +198,31 @@ class ForceQP:
         self.solves = 0
         self.solve_time_s = 0.0
 
+    def set_normals(self, normals) -> None:
+        """Align each foot's friction pyramid with a ground normal: ``normals`` is a sequence of F
+        unit 3-vectors (world), or None for world z (the default)."""
+        self.normals = None if normals is None else [tuple(float(v) for v in n) for n in normals]
+
+    @staticmethod
+    def pyramid_rows(n, mu: float) -> np.ndarray:
+        """The four pyramid rows (4, 3) ``g`` with ``g f <= 0`` for unit normal ``n``."""
+        a, b, c = n
+        k = 1.0 / (1.0 + c) if c > -1.0 + 1e-9 else 0.0
+        t1 = (1.0 - a * a * k, -a * b * k, -a)     # world x under the rotation taking z to n
+        t2 = (-a * b * k, 1.0 - b * b * k, -b)     # world y under the same rotation
+        nn = np.array(n, dtype=float)
+        return np.array([np.array(t1) - mu * nn, -np.array(t1) - mu * nn,
+                         np.array(t2) - mu * nn, -np.array(t2) - mu * nn])
+
+    def _write_pyramids(self, pt: _Pattern) -> None:
+        want = None if self.normals is None else [self.normals[i] for i in pt.feet]
+        if want == pt.normals:
+            return
+        for j in range(len(pt.feet)):
+            n = (0.0, 0.0, 1.0) if want is None else want[j]
+            pt.G[4 * j:4 * j + 4, 3 * j:3 * j + 3] = self.pyramid_rows(n, pt.mu)
+        pt.normals = want
+
     def solve(self, r: np.ndarray, w_des: np.ndarray, load: np.ndarray) -> np.ndarray:
         """Forces (3F,) for foot offsets ``r`` (F,3) from the COM, desired wrench
         ``w_des`` (6,) about the COM, and per-foot ``load`` in [0, 1] (0 = swing)."""
@@ -204,6 +236,8 @@ class ForceQP:
             self._last_key = 0
             return self.f
         pt = self._patterns[key]
+        if self.normals is not None or pt.normals is not None:
+            self._write_pyramids(pt)
         # wrench map (scaled by sqrt(2 S)), in B and, transposed, in Mq
         r.take(pt.r_src, out=pt.b_vals)
         pt.b_vals *= pt.b_sgn

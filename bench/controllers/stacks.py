@@ -28,6 +28,14 @@ Per control tick:
    joint torques (``qfrc_bias``), so the SRB forces act as modelled.
 7. Clip to the manifest torque limits.
 
+With a height scan (``obs.height_scan`` not None; see ``foothold.py``) four things change, and
+nothing else: footholds move to the nearest safe cell of the scan and land at the scan's
+height; the swing apex clears the highest scan point between lift-off and touch-down and the
+foot rises before it moves (``scan_swing_hold``); the desired trunk attitude follows the
+roll and pitch of the plane fitted to the feet's last contact points (clipped to
+``scan_max_tilt_deg``); each stance foot's friction pyramid is turned to the scan's local
+normal under it. Without a scan none of this code runs.
+
 Neither stack is told about payloads: only the nominal robot's mass, inertia
 and COM are used.
 """
@@ -51,6 +59,16 @@ from bench.controllers.wrench import DesiredWrench
 CHANNELS = ("x", "y", "z", "roll", "pitch", "yaw")
 
 
+def _rot_y(a: float) -> np.ndarray:
+    c, s = math.cos(a), math.sin(a)
+    return np.array([[c, 0.0, s], [0.0, 1.0, 0.0], [-s, 0.0, c]])
+
+
+def _rot_x(a: float) -> np.ndarray:
+    c, s = math.cos(a), math.sin(a)
+    return np.array([[1.0, 0.0, 0.0], [0.0, c, -s], [0.0, s, c]])
+
+
 class ForceQPController:
     """Trotting controller: SRB force QP for stance, Cartesian PD for swing (no adaptation).
 
@@ -67,6 +85,11 @@ class ForceQPController:
     max_pos_err_m, max_yaw_err_rad: clip on the horizontal position / heading error.
     move_threshold: command size (m/s or rad/s) above which it trots.
     ground_tau_s: time constant of the ground-height estimate (``ground.py``).
+    scan_edge_margin_m, scan_max_roughness_m, scan_max_shift_m: foothold adjustment on a height
+        scan (safety window half-width, largest height range in it, farthest shift; ``foothold.py``).
+    scan_clearance_m: swing apex above the highest scan point along the swing (m).
+    scan_swing_hold: share of the swing at each end without horizontal motion (``swing.py``).
+    scan_max_tilt_deg: clip on the desired roll and pitch taken from the fitted ground plane.
     """
 
     name = "force-qp"
@@ -100,6 +123,12 @@ class ForceQPController:
         max_yaw_err_rad: float = 0.3,
         move_threshold: float = 0.02,
         ground_tau_s: float = 0.05,
+        scan_edge_margin_m: float = 0.05,
+        scan_max_roughness_m: float = 0.03,
+        scan_max_shift_m: float = 0.12,
+        scan_clearance_m: float = 0.07,
+        scan_swing_hold: float = 0.15,
+        scan_max_tilt_deg: float = 25.0,
     ) -> None:
         self.params = dict(locals())
         self.params.pop("self")
@@ -155,6 +184,10 @@ class ForceQPController:
         self.tau = np.zeros(nj)
         self._prev_contact = [True] * nf
         self._started = False
+        # height-scan stepping: made on the first tick that carries a scan (see _scan_update)
+        self.scan_map = None
+        self._normals = [(0.0, 0.0, 1.0)] * nf
+        self._normal_set = [False] * nf
         self.ticks = 0
         self.step_time_s = 0.0
         self._reset_extra()
@@ -216,6 +249,11 @@ class ForceQPController:
         gait.update(dt, moving)
         contact = gait.contact_list
 
+        scan = getattr(obs, "height_scan", None)
+        smap = None
+        if scan is not None:
+            smap = self._scan_update(scan, pos[0], pos[1], yaw)
+
         # ground: plane through the last contact point of each foot
         fp = kin.foot_pos.tolist()
         fc = obs.foot_contact.tolist()
@@ -232,6 +270,14 @@ class ForceQPController:
         v_des = [vx, vy, gx * vx + gy * vy]
         self.v_des[:] = v_des
         self.w_des[2] = c[2]
+        if smap is not None:
+            # trunk attitude along the fitted ground plane: pitch from the slope along the heading,
+            # roll from the slope across it (nose up on an ascending slope is a negative pitch about y)
+            tmax = self._max_tilt
+            pitch = max(-tmax, min(tmax, -math.atan(cyaw * gx + syaw * gy)))
+            roll = max(-tmax, min(tmax, math.atan(-syaw * gx + cyaw * gy)))
+            so3.rot_z(yd, out=self.rot_des)
+            self.rot_des[:] = self.rot_des @ _rot_y(pitch) @ _rot_x(roll)
 
         # wrench (+ adaptive term) and stance forces; 3-vectors handed over as Python floats (same values)
         wr = self.wrench
@@ -239,6 +285,8 @@ class ForceQPController:
         self._adapt()
         w = wr.compute_wrench(rot)
         np.subtract(kin.foot_pos, kin.com, out=self.r)
+        if smap is not None:
+            self._stance_normals(smap, contact, fp)
         f = self.qp.solve(self.r, w, gait.load_list).tolist()
 
         # per-foot Cartesian force on the foot: -f for stance, swing PD otherwise
@@ -258,11 +306,16 @@ class ForceQPController:
                     fv = kin.foot_vel.tolist()
                 if prev[i]:
                     sw.start_swing(i, fp[i])
+                    if smap is not None:
+                        smap.forget(i)
+                        self._normal_set[i] = False
                 nx, ny = nom[i]
                 ox, oy = cyaw * nx - syaw * ny, syaw * nx + cyaw * ny
                 fh_i = sw.plan_foothold(i, pos[0] + ox, pos[1] + oy, ox, oy, vel[0], vel[1], vx, vy, c[2],
                                         gait.time_to_touchdown_s(i), t_st, 0.0)
                 fh_i[2] = ground.height_at(fh_i[0], fh_i[1], pos[0], pos[1]) + fh
+                if smap is not None:
+                    self._scan_foothold(smap, i, fh_i, fh)
                 u[j], u[j + 1], u[j + 2] = sw.track(i, gait.swing_phase_list[i], t_sw, fp[i], fv[i])
             prev[i] = contact[i]
         self.u[:] = u
@@ -277,6 +330,52 @@ class ForceQPController:
         self.ticks += 1
         self.step_time_s += time.perf_counter() - t0
         return tau
+
+    # ------------------------------------------------------------ height scan
+    def _scan_update(self, scan, x: float, y: float, yaw: float):
+        if self.scan_map is None:
+            sensing = getattr(self.robot, "sensing", None)
+            xy = getattr(sensing, "height_scan_xy", None)
+            if xy is None:
+                raise ValueError("the observation carries a height scan but robot.sensing.height_scan_xy "
+                                 "(its point offsets) is missing")
+            from bench.controllers.foothold import HeightScanMap
+
+            p = self.params
+            self.scan_map = HeightScanMap(xy, edge_margin_m=p["scan_edge_margin_m"],
+                                          max_roughness_m=p["scan_max_roughness_m"],
+                                          max_shift_m=p["scan_max_shift_m"])
+            self.swing.hold = float(p["scan_swing_hold"])
+            self._max_tilt = math.radians(p["scan_max_tilt_deg"])
+        self.scan_map.update(scan, x, y, yaw)
+        return self.scan_map
+
+    def _scan_foothold(self, smap, i: int, fh_i: list, fh: float) -> None:
+        """Move the planned foothold ``fh_i`` of swing foot ``i`` onto the scan; set its apex."""
+        sw = self.swing
+        x, y, _ = smap.adjust(i, fh_i[0], fh_i[1])
+        z = smap.height_at(x, y)
+        fh_i[0], fh_i[1] = x, y
+        if z == z:                     # not NaN: land at the scanned height
+            fh_i[2] = z + fh
+        lo = sw.liftoff[i]
+        top = smap.max_height_along(lo[0], lo[1], x, y)
+        apex = max(lo[2], fh_i[2])
+        if top == top:
+            apex = max(apex, top + fh)
+        sw.apex_z[i] = apex + self.params["scan_clearance_m"]
+
+    def _stance_normals(self, smap, contact, fp) -> None:
+        """Ground normal under each stance foot, read from the scan once per stance."""
+        changed = False
+        for i in range(self.n_feet):
+            if contact[i] and not self._normal_set[i]:
+                n = smap.normal_at(fp[i][0], fp[i][1])
+                self._normals[i] = n if n is not None else (0.0, 0.0, 1.0)
+                self._normal_set[i] = True
+                changed = True
+        if changed:
+            self.qp.set_normals(self._normals)
 
     def _start(self, obs) -> None:
         kin = self.kin

@@ -42,15 +42,26 @@ def bezier3(s: float) -> tuple[float, float]:
     return s * s * (3.0 - 2.0 * s), 6.0 * s * (1.0 - s)
 
 
-def swing_point(p0, pf, s: float, duration_s: float, height_m: float, depth_m: float):
+def swing_point(p0, pf, s: float, duration_s: float, height_m: float, depth_m: float,
+                apex_z: float | None = None, hold: float = 0.0):
     """Desired foot position and velocity ``(x, y, z, vx, vy, vz)`` at swing phase
-    ``s`` in [0, 1], from lift-off ``p0`` to foothold ``pf`` (3-sequences)."""
-    b, db = bezier3(s)
+    ``s`` in [0, 1], from lift-off ``p0`` to foothold ``pf`` (3-sequences).
+
+    ``apex_z``: the apex height (world z) instead of ``max(z0, zf) + height_m`` (terrain-aware
+    swing). ``hold`` in [0, 0.5): the horizontal motion waits for the first ``hold`` of the
+    swing and ends ``hold`` before its end, so the foot rises before it moves toward a riser
+    and comes down onto a tread vertically (0: today's path)."""
+    if hold > 0.0:
+        span = 1.0 - 2.0 * hold
+        b, db = bezier3((s - hold) / span)
+        db /= span
+    else:
+        b, db = bezier3(s)
     rate = 1.0 / duration_s
     x0, y0, z0 = p0[0], p0[1], p0[2]
     dx, dy = pf[0] - x0, pf[1] - y0
     zf = pf[2] - depth_m
-    apex = max(z0, pf[2]) + height_m
+    apex = max(z0, pf[2]) + height_m if apex_z is None else apex_z
     if s < 0.5:
         bz, dbz = bezier3(2.0 * s)
         z = z0 + (apex - z0) * bz
@@ -102,6 +113,8 @@ class SwingPlanner:
         self.foothold = [[0.0, 0.0, 0.0] for _ in range(n_feet)]
         self.pos_des = [[0.0, 0.0, 0.0] for _ in range(n_feet)]
         self.vel_des = [[0.0, 0.0, 0.0] for _ in range(n_feet)]
+        self.apex_z: list[float | None] = [None] * n_feet   # terrain-aware apex per foot (None: default)
+        self.hold = 0.0                                        # see swing_point
 
     def start_swing(self, foot: int, pos) -> None:
         """Record the lift-off point of ``foot``."""
@@ -153,7 +166,8 @@ class SwingPlanner:
     def track(self, foot: int, s: float, duration_s: float, pos, vel):
         """Cartesian PD force ``(ux, uy, uz)`` on the foot toward the path point at phase ``s``."""
         px, py, pz, vx, vy, vz = swing_point(self.liftoff[foot], self.foothold[foot], s, duration_s,
-                                             self.swing_height_m, self.touchdown_depth_m)
+                                             self.swing_height_m, self.touchdown_depth_m,
+                                             self.apex_z[foot], self.hold)
         pd, vd = self.pos_des[foot], self.vel_des[foot]
         pd[0], pd[1], pd[2] = px, py, pz
         vd[0], vd[1], vd[2] = vx, vy, vz
