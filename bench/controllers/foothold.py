@@ -15,7 +15,10 @@ that window (max - min, a morphological gradient) is at most ``max_roughness_m``
 covers the three hazards: a step edge within the margin (the range is the riser height), a
 slope steeper than ``atan(max_roughness_m / (2 edge_margin_m))``, and roughness. The heuristic
 foothold (Raibert's, from ``swing.py``) is moved to the nearest safe cell within
-``max_shift_m``; when no cell in reach is safe it stays where it is. To keep the target from
+``max_shift_m``; when no cell in reach is safe it stays where it is. "Nearest" weighs a shift
+against the direction of travel by ``back_weight`` (a shift backward counts that many times its
+length; common practice, no source): a foot moved back behind an edge leaves the leg stretched
+behind the hip for the whole stance, one moved forward onto the next tread does not. To keep the target from
 jumping back and forth across an edge while the heuristic point moves during a swing, the
 previous tick's shift is kept while the shifted point is still safe (hysteresis).
 
@@ -23,7 +26,9 @@ Swing apex: the highest scan point within ``foot_radius_m`` sideways of the stra
 lift-off to foothold, plus the foot-site height and the clearance.
 
 Local normal: a least-squares plane over the valid points of a ``normal_window_m`` square around
-the foothold (the same normal equations as ``ground.py``); on a stair tread it is vertical.
+the foothold (the same normal equations as ``ground.py``); on a stair tread it is vertical. On an
+unsafe cell (an edge within the margin) there is none: a plane fitted across a riser would tilt
+the friction pyramid by tens of degrees, and the stack keeps the world-vertical one instead.
 """
 
 from __future__ import annotations
@@ -77,7 +82,8 @@ class HeightScanMap:
     """
 
     def __init__(self, scan_xy, edge_margin_m: float = 0.05, max_roughness_m: float = 0.03,
-                 max_shift_m: float = 0.12, foot_radius_m: float = 0.03, normal_window_m: float = 0.04) -> None:
+                 max_shift_m: float = 0.12, foot_radius_m: float = 0.03, normal_window_m: float = 0.04,
+                 back_weight: float = 2.0) -> None:
         xy = np.asarray(scan_xy, dtype=float)
         if xy.ndim != 3 or xy.shape[2] != 2 or xy.shape[0] < 2 or xy.shape[1] < 2:
             raise ValueError(f"height scan points must have shape (nx >= 2, ny >= 2, 2), got {xy.shape}")
@@ -96,12 +102,22 @@ class HeightScanMap:
         self.foot_radius_m = float(foot_radius_m)
         self._k_edge = max(1, int(math.ceil(edge_margin_m / self.res - 1e-9)))
         self._k_normal = max(1, int(round(normal_window_m / self.res)))
-        # search offsets in cells, nearest first (in metres, through the grid basis)
+        # search offsets in cells, cheapest first, for travel forward (+1), backward (-1) and none (0)
         ks = int(math.ceil(max_shift_m / self.res))
         offs = [(di, dj) for di in range(-ks, ks + 1) for dj in range(-ks, ks + 1)]
-        dist = [float(np.linalg.norm(di * self.ex + dj * self.ey)) for di, dj in offs]
-        order = sorted(range(len(offs)), key=lambda n: (dist[n], offs[n]))
-        self._search = [offs[n] for n in order if dist[n] <= max_shift_m + 1e-9]
+        self._search = {}
+        for sign in (1, -1, 0):
+            cost, keep = [], []
+            for di, dj in offs:
+                v = di * self.ex + dj * self.ey
+                if float(np.linalg.norm(v)) > max_shift_m + 1e-9:
+                    continue
+                along = sign * float(v[0])       # trunk-frame x is the heading
+                w = back_weight if along < 0.0 else 1.0
+                cost.append(math.hypot(w * v[0], v[1]))
+                keep.append((di, dj))
+            order = sorted(range(len(keep)), key=lambda n: (cost[n], keep[n]))
+            self._search[sign] = [keep[n] for n in order]
         self.heights = np.full(self.shape, np.nan)
         self.safe = np.zeros(self.shape, dtype=bool)
         self.pose = (0.0, 0.0, 1.0, 0.0)        # trunk x, y, cos yaw, sin yaw
@@ -151,9 +167,10 @@ class HeightScanMap:
         c = self._cell(x, y)
         return bool(self.safe[c]) if c is not None else False
 
-    def adjust(self, foot: int, x: float, y: float) -> tuple[float, float, bool]:
+    def adjust(self, foot: int, x: float, y: float, travel: int = 0) -> tuple[float, float, bool]:
         """Foothold near the heuristic point ``(x, y)``: ``(x', y', found)``.
 
+        ``travel``: +1 walking forward, -1 backward, 0 neither (which shifts cost more).
         Keeps last tick's shift of ``foot`` while it still lands on a safe cell; otherwise the
         nearest safe cell within ``max_shift_m`` (its centre); otherwise ``(x, y, False)``."""
         last = self.shift.get(foot)
@@ -165,7 +182,7 @@ class HeightScanMap:
         i0, j0 = int(round(fi)), int(round(fj))
         nx, ny = self.shape
         safe = self.safe
-        for di, dj in self._search:
+        for di, dj in self._search[travel]:
             i, j = i0 + di, j0 + dj
             if 0 <= i < nx and 0 <= j < ny and safe[i, j]:
                 # move by whole cells from the heuristic point (keeps its sub-cell position)
@@ -204,7 +221,8 @@ class HeightScanMap:
     def normal_at(self, x: float, y: float) -> tuple[float, float, float] | None:
         """Upward unit normal of the least-squares plane of the scan around ``(x, y)`` (world), or None."""
         c = self._cell(x, y)
-        if c is None:
+        if c is None or not self.safe[c]:
+            # off the scan, or near an edge: a plane fitted across a riser is no contact normal
             return None
         k = self._k_normal
         i, j = c

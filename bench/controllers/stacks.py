@@ -353,7 +353,8 @@ class ForceQPController:
     def _scan_foothold(self, smap, i: int, fh_i: list, fh: float) -> None:
         """Move the planned foothold ``fh_i`` of swing foot ``i`` onto the scan; set its apex."""
         sw = self.swing
-        x, y, _ = smap.adjust(i, fh_i[0], fh_i[1])
+        cx = self.cmd[0]
+        x, y, _ = smap.adjust(i, fh_i[0], fh_i[1], 1 if cx > 0.05 else (-1 if cx < -0.05 else 0))
         z = smap.height_at(x, y)
         fh_i[0], fh_i[1] = x, y
         if z == z:                     # not NaN: land at the scanned height
