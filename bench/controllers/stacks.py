@@ -90,6 +90,7 @@ class ForceQPController:
     scan_clearance_m: swing apex above the highest scan point along the swing (m).
     scan_swing_hold: share of the swing at each end without horizontal motion (``swing.py``).
     scan_max_tilt_deg: clip on the desired roll and pitch taken from the fitted ground plane.
+    scan_tilt_tau_s: time constant of the low-pass on that desired roll and pitch (s).
     """
 
     name = "force-qp"
@@ -128,7 +129,8 @@ class ForceQPController:
         scan_max_shift_m: float = 0.12,
         scan_clearance_m: float = 0.07,
         scan_swing_hold: float = 0.15,
-        scan_max_tilt_deg: float = 25.0,
+        scan_max_tilt_deg: float = 14.0,
+        scan_tilt_tau_s: float = 0.4,
     ) -> None:
         self.params = dict(locals())
         self.params.pop("self")
@@ -273,11 +275,13 @@ class ForceQPController:
         if smap is not None:
             # trunk attitude along the fitted ground plane: pitch from the slope along the heading,
             # roll from the slope across it (nose up on an ascending slope is a negative pitch about y)
-            tmax = self._max_tilt
-            pitch = max(-tmax, min(tmax, -math.atan(cyaw * gx + syaw * gy)))
-            roll = max(-tmax, min(tmax, math.atan(-syaw * gx + cyaw * gy)))
+            # low-passed: on stairs the plane through the feet jumps by a riser each time a foot lands
+            tmax, a = self._max_tilt, self._tilt_alpha
+            tilt = self._tilt
+            tilt[0] += a * (max(-tmax, min(tmax, -math.atan(cyaw * gx + syaw * gy))) - tilt[0])
+            tilt[1] += a * (max(-tmax, min(tmax, math.atan(-syaw * gx + cyaw * gy))) - tilt[1])
             so3.rot_z(yd, out=self.rot_des)
-            self.rot_des[:] = self.rot_des @ _rot_y(pitch) @ _rot_x(roll)
+            self.rot_des[:] = self.rot_des @ _rot_y(tilt[0]) @ _rot_x(tilt[1])
 
         # wrench (+ adaptive term) and stance forces; 3-vectors handed over as Python floats (same values)
         wr = self.wrench
@@ -347,6 +351,8 @@ class ForceQPController:
                                           max_shift_m=p["scan_max_shift_m"])
             self.swing.hold = float(p["scan_swing_hold"])
             self._max_tilt = math.radians(p["scan_max_tilt_deg"])
+            self._tilt_alpha = 1.0 - math.exp(-self.dt / max(p["scan_tilt_tau_s"], 1e-6))
+            self._tilt = [0.0, 0.0]   # desired pitch, roll (rad)
         self.scan_map.update(scan, x, y, yaw)
         return self.scan_map
 
