@@ -124,7 +124,7 @@ class ForceQPController:
         max_yaw_err_rad: float = 0.3,
         move_threshold: float = 0.02,
         ground_tau_s: float = 0.05,
-        scan_edge_margin_m: float = 0.05,
+        scan_edge_margin_m: float = 0.065,
         scan_max_roughness_m: float = 0.03,
         scan_max_shift_m: float = 0.12,
         scan_clearance_m: float = 0.07,
