@@ -91,6 +91,8 @@ class ForceQPController:
     scan_swing_hold: share of the swing at each end without horizontal motion (``swing.py``).
     scan_max_tilt_deg: clip on the desired roll and pitch taken from the fitted ground plane.
     scan_tilt_tau_s: time constant of the low-pass on that desired roll and pitch (s).
+    scan_height_offset_m: added to the desired trunk height while a scan is present (m); a taller
+        stance folds the knees less far back, away from the edge of the step behind when descending.
     """
 
     name = "force-qp"
@@ -131,6 +133,7 @@ class ForceQPController:
         scan_swing_hold: float = 0.15,
         scan_max_tilt_deg: float = 14.0,
         scan_tilt_tau_s: float = 0.4,
+        scan_height_offset_m: float = 0.0,
     ) -> None:
         self.params = dict(locals())
         self.params.pop("self")
@@ -276,6 +279,8 @@ class ForceQPController:
             # trunk attitude along the fitted ground plane: pitch from the slope along the heading,
             # roll from the slope across it (nose up on an ascending slope is a negative pitch about y)
             # low-passed: on stairs the plane through the feet jumps by a riser each time a foot lands
+            pd[2] += self._scan_dz
+            self.p_des[2] = pd[2]
             tmax, a = self._max_tilt, self._tilt_alpha
             tilt = self._tilt
             tilt[0] += a * (max(-tmax, min(tmax, -math.atan(cyaw * gx + syaw * gy))) - tilt[0])
@@ -353,6 +358,7 @@ class ForceQPController:
             self._max_tilt = math.radians(p["scan_max_tilt_deg"])
             self._tilt_alpha = 1.0 - math.exp(-self.dt / max(p["scan_tilt_tau_s"], 1e-6))
             self._tilt = [0.0, 0.0]   # desired pitch, roll (rad)
+            self._scan_dz = float(p["scan_height_offset_m"])
         self.scan_map.update(scan, x, y, yaw)
         return self.scan_map
 
