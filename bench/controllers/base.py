@@ -38,7 +38,11 @@ class Observation:
     joint_pos: np.ndarray = field(default_factory=lambda: np.zeros(0))  # (J,) rad
     joint_vel: np.ndarray = field(default_factory=lambda: np.zeros(0))  # (J,) rad/s
     foot_contact: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=bool))  # (F,)
-    privileged: Privileged = field(default_factory=Privileged)
+    privileged: Privileged | None = field(default_factory=Privileged)  # None when the scenario says privileged: false
+    # Extra sensors (scenario key ``sensing:``); None when the scenario does not configure them.
+    height_scan: np.ndarray | None = None   # (nx, ny) world z of the terrain, m; NaN: no reading
+    foot_force: np.ndarray | None = None    # (F,) normal force N, or (F, 3) world-frame force N
+    joint_torque: np.ndarray | None = None  # (J,) measured joint torque, N m
 
     @classmethod
     def zeros(cls, n_joints: int, n_feet: int) -> "Observation":
@@ -48,6 +52,27 @@ class Observation:
             joint_vel=np.zeros(n_joints),
             foot_contact=np.zeros(n_feet, dtype=bool),
         )
+
+
+@dataclass(frozen=True)
+class SensingInfo:
+    """What the controller senses, given in ``reset`` as ``robot.sensing``.
+
+    ``height_scan_xy[i, j]`` is the (x forward, y left) offset in m of scan point (i, j) from the trunk
+    origin projected vertically, in the yaw-aligned trunk frame: the world position of the point is
+    ``trunk_xy + Rz(trunk_yaw) @ height_scan_xy[i, j]`` at the instant the scan was taken.
+    """
+
+    privileged: bool = True
+    height_scan_xy: np.ndarray | None = None   # (nx, ny, 2) m, or None: no height scan
+    foot_force: str | None = None              # "normal", "3d" or None
+    joint_torque: bool = False
+    height_scan_rate_hz: float | None = None   # scans per second (None: every control tick)
+    height_scan_latency_s: float = 0.0
+
+    @property
+    def height_scan_shape(self) -> tuple[int, int] | None:
+        return None if self.height_scan_xy is None else tuple(self.height_scan_xy.shape[:2])
 
 
 @runtime_checkable

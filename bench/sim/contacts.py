@@ -122,3 +122,15 @@ class ContactTable:
             acc[j + 1] += f1 * c0 + f4 * c1 + f7 * c2
             acc[j + 2] += f2 * c0 + f5 * c1 + f8 * c2
         out.reshape(-1)[:] = acc
+
+    def normal_forces(self, m: mujoco.MjModel, d: mujoco.MjData, out: np.ndarray) -> None:
+        """Each foot's summed normal contact force, N, into ``out`` (F,), over the contacts ``classify`` found.
+
+        The normal component of ``mj_contactForce`` (contact frame, first entry) pushes the two geoms apart,
+        so it is the same for the foot whichever of the two geoms it is.
+        """
+        out[:] = 0.0
+        cf = self._cf
+        for i, _sign, foot in self._found:
+            mujoco.mj_contactForce(m, d, i, cf)
+            out[foot] += cf[0]
