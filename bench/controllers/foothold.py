@@ -9,11 +9,12 @@ trunk origin projected vertically); NaN where a point dropped out. The grid is r
 origin and the two step vectors are read from ``scan_xy`` itself, so any size, resolution or
 offset works.
 
-Foothold adjustment rule: *nearest safe cell on a steppability map*. A cell is safe when every
-scan point within ``edge_margin_m`` of it (a square window) is valid and the height range over
-that window (max - min, a morphological gradient) is at most ``max_roughness_m``. One number
-covers the three hazards: a step edge within the margin (the range is the riser height), a
-slope steeper than ``atan(max_roughness_m / (2 edge_margin_m))``, and roughness. The heuristic
+Foothold adjustment rule: *nearest safe cell on a steppability map*. An *edge point* is one whose
+height differs from a grid neighbour's by more than ``max_step_m`` (a riser, a block side, a gap),
+or a dropout. A cell is safe when no edge point lies within ``edge_margin_m`` of it (a square
+window: a morphological dilation of the edges) and the height range over that window is at most
+``max_roughness_m`` plus what a plane of ``max_slope_deg`` spans across it (so ramps stay
+steppable, bumps and steeper ground do not). The heuristic
 foothold (Raibert's, from ``swing.py``) is moved to the nearest safe cell within
 ``max_shift_m``; when no cell in reach is safe it stays where it is. "Nearest" weighs a shift
 against the direction of travel by ``back_weight`` (a shift backward counts that many times its
@@ -68,6 +69,17 @@ def _window_range(h: np.ndarray, k: int) -> np.ndarray:
     return out
 
 
+def _window_max(b: np.ndarray, k: int) -> np.ndarray:
+    """Per cell: any True in the (2k+1)^2 window; True where the window leaves the grid."""
+    nx, ny = b.shape
+    out = np.ones((nx, ny), dtype=bool)
+    if nx < 2 * k + 1 or ny < 2 * k + 1:
+        return out
+    win = np.lib.stride_tricks.sliding_window_view(b, (2 * k + 1, 2 * k + 1))
+    out[k:nx - k, k:ny - k] = win.any(axis=(2, 3))
+    return out
+
+
 class HeightScanMap:
     """The latest scan in world coordinates, its steppability mask and the queries the stack needs.
 
@@ -75,7 +87,9 @@ class HeightScanMap:
     ----------
     scan_xy: (nx, ny, 2) point offsets in the yaw-aligned trunk frame (m).
     edge_margin_m: half-width of the safety window around a foothold (m).
-    max_roughness_m: largest height range within the window for a safe cell (m).
+    max_roughness_m: largest height range within the window for a safe cell, beyond the slope allowance (m).
+    max_step_m: a height jump between neighbouring points larger than this is an edge (m).
+    max_slope_deg: steepest plane whose height range across the window is still allowed.
     max_shift_m: farthest a foothold is moved from the heuristic point (m).
     foot_radius_m: half-width of the band searched for the swing apex (m).
     normal_window_m: half-width of the window of the local plane fit (m).
@@ -83,7 +97,7 @@ class HeightScanMap:
 
     def __init__(self, scan_xy, edge_margin_m: float = 0.05, max_roughness_m: float = 0.03,
                  max_shift_m: float = 0.12, foot_radius_m: float = 0.03, normal_window_m: float = 0.04,
-                 back_weight: float = 2.0) -> None:
+                 back_weight: float = 2.0, max_step_m: float = 0.02, max_slope_deg: float = 25.0) -> None:
         xy = np.asarray(scan_xy, dtype=float)
         if xy.ndim != 3 or xy.shape[2] != 2 or xy.shape[0] < 2 or xy.shape[1] < 2:
             raise ValueError(f"height scan points must have shape (nx >= 2, ny >= 2, 2), got {xy.shape}")
@@ -100,8 +114,12 @@ class HeightScanMap:
         self.max_roughness_m = float(max_roughness_m)
         self.max_shift_m = float(max_shift_m)
         self.foot_radius_m = float(foot_radius_m)
-        self._k_edge = max(1, int(math.ceil(edge_margin_m / self.res - 1e-9)))
+        # window half-width in cells: an edge line (half a cell beyond its edge points) is then at least
+        # (k + 1/2) cells = edge_margin_m from a safe cell's centre
+        self._k_edge = max(1, int(math.ceil(edge_margin_m / self.res - 0.5 - 1e-9)))
         self._k_normal = max(1, int(round(normal_window_m / self.res)))
+        self.max_step_m = float(max_step_m)
+        self._max_range = self.max_roughness_m + 2 * self._k_edge * self.res * math.tan(math.radians(max_slope_deg))
         # search offsets in cells, cheapest first, for travel forward (+1), backward (-1) and none (0)
         ks = int(math.ceil(max_shift_m / self.res))
         offs = [(di, dj) for di in range(-ks, ks + 1) for dj in range(-ks, ks + 1)]
@@ -131,9 +149,19 @@ class HeightScanMap:
             raise ValueError(f"height scan has shape {h.shape}, its points {self.shape}")
         self.heights = h
         self.pose = (float(trunk_x), float(trunk_y), math.cos(yaw), math.sin(yaw))
-        rng = _window_range(h, self._k_edge)
+        k = self._k_edge
+        edge = ~np.isfinite(h)
         with np.errstate(invalid="ignore"):
-            self.safe = rng <= self.max_roughness_m      # NaN compares False: unsafe
+            for axis in (0, 1):
+                jump = np.abs(np.diff(h, axis=axis)) > self.max_step_m   # NaN compares False
+                lo = [slice(None), slice(None)]
+                hi = [slice(None), slice(None)]
+                lo[axis], hi[axis] = slice(None, -1), slice(1, None)
+                edge[tuple(lo)] |= jump
+                edge[tuple(hi)] |= jump
+            any_edge = _window_max(edge, k)
+            rng = _window_range(h, k)
+            self.safe = (~any_edge) & (rng <= self._max_range)   # NaN compares False: unsafe
 
     # ------------------------------------------------------------------ frames
     def to_index(self, x: float, y: float) -> tuple[float, float]:

@@ -1,0 +1,205 @@
+"""Terrain-aware stepping: foothold adjustment on a height scan, plane fits, the rotated friction
+pyramid, and a short stair episode through the real sensing path."""
+
+import math
+import textwrap
+
+import numpy as np
+import pytest
+
+from bench.controllers.foothold import HeightScanMap, fit_plane, plane_normal
+from bench.controllers.force_qp import ForceQP
+from bench.controllers.ground import GroundPlane
+
+RISE, RUN, START = 0.10, 0.30, 0.80          # synthetic stairs: edges at START + k RUN
+EDGES = [START + k * RUN for k in range(4)]
+
+
+def _grid(size=(1.1, 0.5), res=0.02, offset=(0.1, 0.0)):
+    nx, ny = int(round(size[0] / res)) + 1, int(round(size[1] / res)) + 1
+    gx = offset[0] + np.linspace(-size[0] / 2, size[0] / 2, nx)
+    gy = offset[1] + np.linspace(-size[1] / 2, size[1] / 2, ny)
+    return np.stack(np.meshgrid(gx, gy, indexing="ij"), axis=-1)
+
+
+def _stairs(wx):
+    return np.clip(np.floor((wx - START) / RUN) + 1, 0, 4) * RISE
+
+
+def _scan_map(trunk_xy=(0.9, 0.0), yaw=0.0, **kw):
+    xy = _grid()
+    m = HeightScanMap(xy, **kw)
+    c, s = math.cos(yaw), math.sin(yaw)
+    wx = trunk_xy[0] + c * xy[..., 0] - s * xy[..., 1]
+    m.update(_stairs(wx), trunk_xy[0], trunk_xy[1], yaw)
+    return m
+
+
+@pytest.mark.parametrize("yaw_deg", [0.0, 20.0])
+def test_footholds_keep_off_stair_edges(yaw_deg):
+    margin = 0.065
+    m = _scan_map(yaw=math.radians(yaw_deg), edge_margin_m=margin, max_shift_m=0.12)
+    # heuristic points swept across two edges, also off the centre line
+    for x in np.arange(0.70, 1.25, 0.005):
+        for y in (-0.1, 0.0, 0.1):
+            m.forget(0)
+            fx, fy, found = m.adjust(0, x, y, travel=1)
+            assert found
+            d_edge = min(abs(fx - e) for e in EDGES)
+            # the safety window spans whole cells of 2 cm: the kept distance is the margin less half a cell
+            assert d_edge >= margin - 0.01 - 1e-9, (x, y, fx)
+            assert math.hypot(fx - x, fy - y) <= 0.12 + 1e-9
+            # a point already safe stays exactly where it is (the window is a square in the scan's
+            # frame: its reach across a turned edge is up to sqrt(2) times the margin, plus a cell)
+            fi, fj = m.to_index(x, y)
+            inside = 5 <= fi <= m.shape[0] - 6 and 5 <= fj <= m.shape[1] - 6   # window within the scan
+            if inside and min(abs(x - e) for e in EDGES) > margin * math.sqrt(2.0) + 0.02:
+                assert (fx, fy) == pytest.approx((x, y))
+
+
+def test_foothold_prefers_the_tread_ahead_and_keeps_its_shift():
+    m = _scan_map(edge_margin_m=0.065)
+    e = EDGES[1]                                  # 1.10
+    fx, _, _ = m.adjust(1, e - 0.01, 0.0, travel=1)
+    assert fx > e + 0.05                          # onto the next tread, not back behind the edge
+    m.forget(1)
+    bx, _, _ = m.adjust(1, e - 0.01, 0.0, travel=-1)
+    assert bx < e - 0.05                          # walking backward: back onto the tread behind
+    m.forget(1)
+    m.adjust(1, e - 0.01, 0.0, travel=1)
+    fx2, _, _ = m.adjust(1, e + 0.005, 0.0, travel=1)
+    assert fx2 - (e + 0.005) == pytest.approx(fx - (e - 0.01))   # the same shift while it stays safe
+    m.forget(1)
+    fx3, _, _ = m.adjust(1, e + 0.005, 0.0, travel=1)
+    assert fx3 - (e + 0.005) < fx2 - (e + 0.005) - 0.01         # a fresh search would shift it less
+
+
+def test_dropouts_and_off_scan_points_are_never_footholds():
+    m = _scan_map()
+    h = m.heights.copy()
+    h[20:30, 10:16] = np.nan
+    m.update(h, 0.9, 0.0, 0.0)
+    x, y = m.to_world(25, 13)
+    fx, fy, found = m.adjust(0, x, y)
+    assert found and not np.isnan(m.height_at(fx, fy))
+    holes = [m.to_world(i, j) for i in range(20, 30) for j in range(10, 16)]
+    gap = min(math.hypot(fx - hx, fy - hy) for hx, hy in holes)
+    # a dropout is an edge point: kept at the margin (a missing point half a cell further than its centre)
+    assert gap >= m.edge_margin_m + 0.5 * m.res - 0.5 * m.res * math.sqrt(2.0) - 1e-9
+    assert m.adjust(0, 10.0, 0.0) == (10.0, 0.0, False)
+
+
+def test_apex_search_sees_the_riser_between_liftoff_and_touchdown():
+    m = _scan_map()
+    assert m.max_height_along(0.95, 0.0, 1.2, 0.0) == pytest.approx(0.2)
+    assert m.max_height_along(0.85, 0.0, 1.05, 0.0) == pytest.approx(0.1)
+
+
+@pytest.mark.parametrize("plane", [(0.3, 0.0, 0.0), (0.1, math.tan(math.radians(12)), 0.0), (-0.2, 0.15, -0.3)])
+def test_plane_fits_match_numpy_lstsq(plane):
+    rng = np.random.default_rng(7)
+    h, gx, gy = plane
+    pts = rng.uniform(-0.3, 0.3, size=(4, 2))
+    z = h + gx * pts[:, 0] + gy * pts[:, 1] + rng.normal(0, 0.01, 4)
+    a = np.column_stack([np.ones(4), pts])
+    ref = np.linalg.lstsq(a, z, rcond=None)[0]
+    assert fit_plane(np.column_stack([pts, z])) == pytest.approx(tuple(ref), abs=1e-12)
+    # the stacks' closed-form ground plane (no ridge) centred at the origin gives the same plane
+    g = GroundPlane(4, slope_reg=0.0, max_slope=10.0)
+    g.reset([(p[0], p[1], zi + 0.02) for p, zi in zip(pts, z)], 0.02)
+    assert g.fit(0.0, 0.0) == pytest.approx(tuple(ref), abs=1e-9)
+
+
+def test_scan_normal_of_a_tilted_plane_and_none_on_an_edge():
+    xy = _grid()
+    m = HeightScanMap(xy)
+    gx, gy = 0.2, -0.1
+    m.update(0.05 + gx * (1.0 + xy[..., 0]) + gy * xy[..., 1], 1.0, 0.0, 0.0)
+    assert m.normal_at(1.1, 0.0) == pytest.approx(plane_normal(gx, gy), abs=1e-9)
+    assert _scan_map().normal_at(EDGES[1] + 0.01, 0.0) is None
+    assert _scan_map().normal_at(EDGES[1] + 0.15, 0.0) == pytest.approx((0.0, 0.0, 1.0), abs=1e-12)
+
+
+def _cone_excess(f, n, mu):
+    """Second formulation: circular cone ||f - (f.n) n|| <= mu_c (f.n); returns the excess (<= 0 inside)."""
+    fn = float(f @ n)
+    return float(np.linalg.norm(f - fn * n)) - mu * fn
+
+
+@pytest.mark.parametrize("tilt_deg", [10.0, 20.0])
+def test_rotated_pyramid_keeps_forces_in_the_tilted_cone(tilt_deg):
+    from scipy.spatial.transform import Rotation
+
+    mu = 0.5
+    a = math.radians(tilt_deg)
+    n = np.array([-math.sin(a), 0.0, math.cos(a)])          # ground rising along +x
+    r = np.array([[0.17, 0.13, -0.29], [0.17, -0.13, -0.29], [-0.17, 0.13, -0.29], [-0.17, -0.13, -0.29]])
+    # a forward push of 0.45 of the weight: inside the world-axis pyramid, outside the tilted one
+    w = np.array([54.0, 0.0, 120.0, 0.0, 0.0, 0.0])
+    world = ForceQP(4, mu=mu, alpha=1e-3, beta=0.0)
+    f_world = world.solve(r, w, [1.0] * 4).reshape(4, 3).copy()
+    turned = ForceQP(4, mu=mu, alpha=1e-3, beta=0.0)
+    turned.set_normals([n] * 4)
+    f = turned.solve(r, w, [1.0] * 4).reshape(4, 3).copy()
+    assert world.last_ok and turned.last_ok
+    # tangent axes from an independent construction: scipy's rotation taking z to n
+    rot, _ = Rotation.align_vectors([n], [[0.0, 0.0, 1.0]])
+    t1, t2 = rot.apply([1.0, 0.0, 0.0]), rot.apply([0.0, 1.0, 0.0])
+    assert rot.apply([0.0, 0.0, 1.0]) == pytest.approx(n, abs=1e-12)
+    for fi in f:
+        fn = fi @ n
+        assert fn > 0
+        assert abs(fi @ t1) <= mu * fn + 1e-6 and abs(fi @ t2) <= mu * fn + 1e-6
+        # the pyramid of half-width mu lies inside the circular cone of mu * sqrt(2)
+        assert _cone_excess(fi, n, mu * math.sqrt(2.0)) <= 1e-6
+    # the world-axis pyramid gives forces the tilted ground cannot hold
+    assert max(_cone_excess(fi, n, mu * math.sqrt(2.0)) for fi in f_world) > 0.0
+
+
+def test_pyramid_rows_for_world_z_are_the_world_axis_rows():
+    rows = ForceQP.pyramid_rows((0.0, 0.0, 1.0), 0.5)
+    assert rows.tolist() == [[1.0, 0.0, -0.5], [-1.0, 0.0, -0.5], [0.0, 1.0, -0.5], [0.0, -1.0, -0.5]]
+
+
+ONE_STEP = """
+name: scan-one-step
+description: one 10 cm step, 30 cm tread, with a height scan
+robot: quad12
+duration: {duration}
+seed: 5
+terrain:
+  - stairs: {{start: 0.45, steps: 1, rise: 0.10, run: 0.30, direction: up}}
+{sensing}
+commands:
+  - {{at: 0.0}}
+  - {{at: 0.3, vx: 0.3}}
+criteria:
+  no_fall: true
+"""
+
+
+def _episode(tmp_path, sensing, duration=3.4):
+    from bench.robot.model import NominalRobot
+    from bench.scenario import load_scenarios
+    from bench.sim.episode import run_episode
+    from bench.world.build import build_world
+    from bench.controllers.stacks import ForceQPL1Controller
+
+    path = tmp_path / "s.yaml"
+    path.write_text(textwrap.dedent(ONE_STEP.format(duration=duration, sensing=sensing)))
+    sc = load_scenarios([str(path)])[0]
+    world = build_world(sc)
+    ep = run_episode(world, sc, ForceQPL1Controller(), NominalRobot(world.robot))
+    return ep
+
+
+def test_short_stair_episode_climbs_one_step(tmp_path):
+    sensing = "sensing:\n  height_scan: {size: [1.1, 0.5], resolution: 0.02, offset: [0.1, 0.0]}"
+    ep = _episode(tmp_path, sensing)
+    assert ep.status == "completed", ep.reason
+    pos = ep.trace.arrays["base_pos"]
+    feet = ep.trace.arrays["foot_pos"][-1]
+    # all four feet on the tread (x in [0.45, 0.75], top at 0.10; foot-site 2 cm above it)
+    assert np.all((feet[:, 0] > 0.45) & (feet[:, 0] < 0.75)), feet
+    assert np.allclose(feet[:, 2], 0.12, atol=0.015), feet
+    assert pos[-1, 2] > 0.10 + 0.25
