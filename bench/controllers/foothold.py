@@ -56,6 +56,21 @@ def plane_normal(gx: float, gy: float) -> tuple[float, float, float]:
     return -gx / n, -gy / n, 1.0 / n
 
 
+def _sep(a: np.ndarray, k: int, op) -> np.ndarray:
+    """Elementwise ``op`` (np.maximum or np.minimum) over the (2k+1)^2 window of every interior cell,
+    shape (nx-2k, ny-2k): two one-dimensional passes of shifted slices (the square window is separable)."""
+    w = 2 * k + 1
+    n0 = a.shape[0] - w + 1
+    r = a[0:n0].copy()
+    for d in range(1, w):
+        op(r, a[d:d + n0], out=r)
+    n1 = a.shape[1] - w + 1
+    c = r[:, 0:n1].copy()
+    for d in range(1, w):
+        op(c, r[:, d:d + n1], out=c)
+    return c
+
+
 def _window_range(h: np.ndarray, k: int) -> np.ndarray:
     """Per cell: max - min of ``h`` over the (2k+1)^2 window, NaN when any point there is NaN or
     the window leaves the grid."""
@@ -63,9 +78,8 @@ def _window_range(h: np.ndarray, k: int) -> np.ndarray:
     out = np.full((nx, ny), np.nan)
     if nx < 2 * k + 1 or ny < 2 * k + 1:
         return out
-    win = np.lib.stride_tricks.sliding_window_view(h, (2 * k + 1, 2 * k + 1))
     # NaN propagates through max/min: a window with a dropout is not safe
-    out[k:nx - k, k:ny - k] = win.max(axis=(2, 3)) - win.min(axis=(2, 3))
+    out[k:nx - k, k:ny - k] = _sep(h, k, np.maximum) - _sep(h, k, np.minimum)
     return out
 
 
@@ -75,8 +89,7 @@ def _window_max(b: np.ndarray, k: int) -> np.ndarray:
     out = np.ones((nx, ny), dtype=bool)
     if nx < 2 * k + 1 or ny < 2 * k + 1:
         return out
-    win = np.lib.stride_tricks.sliding_window_view(b, (2 * k + 1, 2 * k + 1))
-    out[k:nx - k, k:ny - k] = win.any(axis=(2, 3))
+    out[k:nx - k, k:ny - k] = _sep(b, k, np.logical_or)
     return out
 
 
