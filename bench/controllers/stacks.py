@@ -33,8 +33,10 @@ nothing else: footholds move to the nearest safe cell of the scan and land at th
 height; the swing apex clears the highest scan point between lift-off and touch-down and the
 foot rises before it moves (``scan_swing_hold``); the desired trunk attitude follows the
 roll and pitch of the plane fitted to the feet's last contact points (clipped to
-``scan_max_tilt_deg``); each stance foot's friction pyramid is turned to the scan's local
-normal under it. Without a scan none of this code runs.
+``scan_max_tilt_deg``; the height may be raised by ``scan_height_offset_m``, 0 by default);
+each stance foot's friction pyramid is turned to the scan's local normal under it. The scan
+is placed with the trunk's current position and heading (exact for a scan without latency).
+Without a scan none of this code runs.
 
 Neither stack is told about payloads: only the nominal robot's mass, inertia
 and COM are used.
@@ -276,11 +278,11 @@ class ForceQPController:
         self.v_des[:] = v_des
         self.w_des[2] = c[2]
         if smap is not None:
-            # trunk attitude along the fitted ground plane: pitch from the slope along the heading,
-            # roll from the slope across it (nose up on an ascending slope is a negative pitch about y)
-            # low-passed: on stairs the plane through the feet jumps by a riser each time a foot lands
             pd[2] += self._scan_dz
             self.p_des[2] = pd[2]
+            # trunk attitude along the fitted ground plane: pitch from the slope along the heading,
+            # roll from the slope across it (nose up on an ascending slope is a negative pitch about y),
+            # low-passed because on stairs the plane through the feet jumps by a riser at each landing
             tmax, a = self._max_tilt, self._tilt_alpha
             tilt = self._tilt
             tilt[0] += a * (max(-tmax, min(tmax, -math.atan(cyaw * gx + syaw * gy))) - tilt[0])
@@ -366,6 +368,8 @@ class ForceQPController:
         """Move the planned foothold ``fh_i`` of swing foot ``i`` onto the scan; set its apex."""
         sw = self.swing
         cx = self.cmd[0]
+        # direction of travel for the backward-shift weighting: the shaped forward command, with a
+        # dead band so that standing and turning on the spot favour neither way
         x, y, _ = smap.adjust(i, fh_i[0], fh_i[1], 1 if cx > 0.05 else (-1 if cx < -0.05 else 0))
         z = smap.height_at(x, y)
         fh_i[0], fh_i[1] = x, y
