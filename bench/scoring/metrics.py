@@ -173,7 +173,8 @@ METRIC_DOCS = {
     "controller_ms_p50": "median controller compute time per tick, ms (wall clock)",
     "controller_ms_p99": "99th percentile of controller compute time per tick, ms (wall clock)",
     "controller_ms_max": "largest controller compute time of a tick, ms (wall clock)",
-    "fell": "1 when the robot fell, else 0",
+    "fell": "1 when the robot fell (trunk, hip or thigh touched the ground, or the trunk origin dropped below "
+            "40 % of the nominal height above the ground under it), else 0",
     "survival_time_s": "simulated time until the episode ended (the fall, or the end), s",
     "total_mass_max": "largest robot-plus-payload mass during the episode, kg",
     "ext_impulse_ns": "sum over ticks of |disturbance force| times the control period, N s",
