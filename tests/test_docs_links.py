@@ -52,3 +52,12 @@ def test_anchor_rule_matches_the_code_hosts():
     p = REPO / "docs" / "reference" / "cli.md"
     a = anchors(p)
     assert "bench-run" in a and "bench-robot-init" in a
+
+
+def test_every_page_says_who_it_is_for_and_what_they_will_have_done():
+    lacking = []
+    for page in sorted((REPO / "docs").rglob("*.md")):
+        head = page.read_text(encoding="utf-8")[:1500]
+        if "**For**" not in head or "**at the end**" not in head:
+            lacking.append(str(page.relative_to(REPO)))
+    assert not lacking, "pages without a '**For** ...; **at the end** ...' opening: " + ", ".join(lacking)
