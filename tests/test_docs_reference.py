@@ -133,3 +133,13 @@ def test_every_metric_computed_has_a_documented_meaning():
     met, _ = compute_metrics(tr, score_from=0.0, controller_stats={"qp_ms_mean": 1.0})
     names = {m for m in met if not m.startswith("controller.")}
     assert names == set(METRIC_DOCS), (names ^ set(METRIC_DOCS))
+
+
+def test_every_robot_attribute_a_controller_gets_is_documented():
+    from bench.robot.locate import resolve_robot
+    from bench.robot.model import ATTRIBUTE_DOCS, NominalRobot
+
+    robot = NominalRobot(resolve_robot("quad12"))
+    public = {n for n in vars(robot) if not n.startswith("_")}
+    public |= {n for n, o in vars(NominalRobot).items() if isinstance(o, property) and not n.startswith("_")}
+    assert public <= set(ATTRIBUTE_DOCS), f"add to bench.robot.model.ATTRIBUTE_DOCS: {sorted(public - set(ATTRIBUTE_DOCS))}"

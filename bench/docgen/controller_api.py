@@ -43,7 +43,9 @@ def _example(robot) -> str:
             text = f"{type(v).__name__}"
         else:
             text = type(v).__name__
-        rows.append([f"`robot.{name}`", text, notes.get(name) or props.get(name, "")])
+        from bench.robot.model import ATTRIBUTE_DOCS
+
+        rows.append([f"`robot.{name}`", text, ATTRIBUTE_DOCS.get(name) or notes.get(name) or props.get(name, "")])
     return table(["attribute", "on quad12 (12 joints, 4 feet)", "meaning"], rows)
 
 
