@@ -131,7 +131,7 @@ def _videos(two, pairs, video_dir: Path, opts) -> None:
     for sid in wanted:
         a, b = pairs[sid]
         try:
-            two.videos[sid] = render_compare(a, b, video_dir, opts)
+            two.videos[sid] = render_compare(a, b, video_dir, opts, allow_changed_scenario=True)
         except RenderUnavailable as exc:
             print(f"video: none made: {exc}")
             return

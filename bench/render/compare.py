@@ -29,15 +29,19 @@ def compare_stem(a, b) -> str:
 
 
 def render_compare(a_dir: str | Path, b_dir: str | Path, out_dir: str | Path = "videos",
-                   opts: VideoOptions | None = None, scenario=None, roots=()) -> Path:
-    """Write ``<out>/<scenario>.<A>-vs-<B>.mp4``; each panel is ``opts.width`` x ``opts.height``."""
+                   opts: VideoOptions | None = None, scenario=None, roots=(), allow_changed_scenario: bool = False) -> Path:
+    """Write ``<out>/<scenario>.<A>-vs-<B>.mp4``; each panel is ``opts.width`` x ``opts.height``.
+
+    ``allow_changed_scenario``: the two runs may have used different versions of the scenario file (a
+    baseline and a candidate that edited it); each panel is then rebuilt from its own run's file, and the
+    replay check still refuses a file edited after its run. Not allowed together with ``scenario``."""
     opts = opts or VideoOptions()
     a, b = load_recording(a_dir), load_recording(b_dir)
     if a.scenario_id != b.scenario_id:
         raise RenderInputError(f"--compare needs two results of the same scenario: {a.dir} is "
                                f"{a.scenario_id!r}, {b.dir} is {b.scenario_id!r}")
     ha, hb = (r.record.content_hash if r.record is not None else r.result.get("content_hash") for r in (a, b))
-    if ha and hb and ha != hb:
+    if ha and hb and ha != hb and (scenario is not None or not allow_changed_scenario):
         raise RenderInputError(f"--compare: {a.dir} and {b.dir} ran different versions of scenario "
                                f"{a.scenario_id!r} (content_hash differs); re-run both from the same file")
     w, h = opts.width, opts.height
