@@ -73,8 +73,20 @@ def smooth(x: np.ndarray, t: np.ndarray, sigma_s: float) -> np.ndarray:
 
 
 def ground_height(model: mujoco.MjModel, data: mujoco.MjData, xy: np.ndarray, z_from: float) -> float | None:
-    """World z of the static terrain below ``xy``: a ray cast down from ``z_from`` that passes through
+    """World z of the static terrain below ``xy``: the median of three rays cast down from ``z_from`` 1 cm
+    apart (one ray exactly on the seam between two stair blocks can slip through), each passing through
     anything that moves (the robot, payloads). None when nothing static is hit."""
+    hits = [_ray_down(model, data, np.asarray(xy, dtype=float) + off, z_from)
+            for off in ((0.0, 0.0), (SEAM_PROBE_M, 0.0), (-SEAM_PROBE_M, 0.0))]
+    hits = [h for h in hits if h is not None]
+    return float(np.median(hits)) if hits else None
+
+
+#: Spacing of the three rays of :func:`ground_height`, m.
+SEAM_PROBE_M = 0.01
+
+
+def _ray_down(model: mujoco.MjModel, data: mujoco.MjData, xy: np.ndarray, z_from: float) -> float | None:
     pnt = np.array([xy[0], xy[1], z_from], dtype=float)
     down = np.array([0.0, 0.0, -1.0])
     geomid = np.zeros(1, dtype=np.int32)
