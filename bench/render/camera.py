@@ -27,8 +27,9 @@ HEADING_SIGMA_S = 0.8
 LOOKAHEAD_M = 0.8
 FULL_SPEED_M_S = 0.3
 #: Camera distance and elevation on flat ground, in robot standing heights and degrees.
-DISTANCE_HEIGHTS = 7.5
-ELEVATION_DEG = -18.0
+#: The elevation keeps the horizon (and the empty sky above it) just out of a 45 degree field of view.
+DISTANCE_HEIGHTS = 6.0
+ELEVATION_DEG = -25.0
 #: Camera azimuth from the heading, degrees: a three-quarter view from behind and to the right.
 AZIMUTH_OFFSET_DEG = 60.0
 #: Rays for the terrain height ahead are cast at this rate, Hz (then interpolated).
@@ -138,7 +139,7 @@ def follow_path(arrays: dict, model: mujoco.MjModel, data: mujoco.MjData, nomina
     reach = np.maximum(np.abs(probe), 0.3)
     slope_deg = np.degrees(np.arctan2(drop, reach))
     elevation = np.clip(ELEVATION_DEG - 0.6 * np.maximum(slope_deg, 0.0) + 0.3 * np.maximum(-slope_deg, 0.0),
-                        -50.0, -6.0)
+                        -55.0, -15.0)
     distance = DISTANCE_HEIGHTS * h + 0.8 * np.abs(drop)
     azimuth = np.degrees(yaw_s) + AZIMUTH_OFFSET_DEG
     return CameraPath(lookat, distance, azimuth, elevation)

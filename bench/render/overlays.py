@@ -132,22 +132,23 @@ class OverlayPainter:
         return img
 
     def banner_rect(self, status: str, reason: str | None, avoid=None) -> tuple[tuple[int, int, int, int], bool]:
-        """Where the verdict banner goes: a full-width band at the middle, just below the top boxes or just above
-        the bottom captions, whichever overlaps ``avoid`` (the robot's pixel box) least; a compact band (smaller
-        text, one line of reason) when every full one would cover it. Returns the band and whether it is compact."""
+        """Where the verdict banner goes: a full-width band at the middle, just below the top boxes, just above
+        the bottom captions, or (covering them, which matter less than the robot on the last frame) at the very
+        top or bottom; the first of these that misses ``avoid`` (the robot's pixel box). When every full band
+        would cover the robot, a compact one (smaller text, one line of reason) where it covers least. Returns
+        the band and whether it is compact."""
         layout = getattr(self, "last_layout", None) or {}
         top_y = max((layout[k][3] for k in ("title", "status") if k in layout), default=0) + self.pad
         bottom_y = layout.get("bottom", self.h) - self.pad
         for compact in (False, True):
             bh = self._banner_height(reason, compact)
-            places = [(self.h - bh) // 2, top_y, bottom_y - bh]
-            places = [int(min(max(y, 0), self.h - bh)) for y in places]
-            rects = [(0, y, self.w, y + bh) for y in places]
+            places = [(self.h - bh) // 2, top_y, bottom_y - bh, 0, self.h - bh]
+            rects = [(0, y, self.w, y + bh) for y in (int(min(max(y, 0), self.h - bh)) for y in places)]
             if avoid is None:
                 return rects[0], False
-            best = min(rects, key=lambda r: (_overlap(r, avoid), rects.index(r)))
-            if _overlap(best, avoid) == 0 or compact:
-                return best, compact
+            best = min(range(len(rects)), key=lambda i: (_overlap(rects[i], avoid), i))
+            if _overlap(rects[best], avoid) == 0 or compact:
+                return rects[best], compact
         raise AssertionError("unreachable")
 
     def _banner_height(self, reason: str | None, compact: bool) -> int:

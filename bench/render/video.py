@@ -131,7 +131,8 @@ class KeyMetric:
             s += f"  ({'average ' if self.averaged else ''}limit {self.limit * self.scale:g})"
         else:
             s += "  (no limit)"
-        over = None if self.limit is None else bool(t >= self.score_from and abs(v) > self.limit)
+        # Before scoring starts nothing is judged either: neutral, like a metric without a limit.
+        over = None if self.limit is None or t < self.score_from else bool(abs(v) > self.limit)
         if t < self.score_from:
             s += "  not scored yet"
         return s, over
