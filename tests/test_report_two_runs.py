@@ -83,6 +83,8 @@ def test_verdict_changes_come_first_worst_first_and_regressed_metrics_are_marked
     for sid in ("flip-to-fail", "flip-to-pass", "pushed"):
         section = re.search(rf'<section class="scenario" id="[^"]*" data-scenario="{sid}".*?</section>', page, re.S)
         assert section and re.search(r'<img class="plots overlay" [^>]*src="data:image/png;base64,', section.group(0))
+        # the scenario files differ between the runs, and the page says so
+        assert "scenario file changed since the baseline" in section.group(0)
     assert not re.search(r'(src|href)="(https?:)?//', page)
 
 

@@ -255,3 +255,13 @@ def test_follow_camera_keeps_robot_and_terrain_ahead_in_view(file):
         assert np.all(np.isfinite(px))
         assert np.all((px[:, 0] > 0.05 * W) & (px[:, 0] < 0.95 * W)), (k, px)
         assert np.all((px[:, 1] > 0.05 * H) & (px[:, 1] < 0.95 * H)), (k, px)
+
+
+def test_side_by_side_header_ends_with_an_ellipsis_instead_of_running_off():
+    from bench.render.overlays import label_bar
+
+    long = "zero: FAILED - fell at t=0.214 s: trunk 0.115 m above the ground, under the fall threshold 0.118 m"
+    img = np.asarray(label_bar(200, 20, long, "failed")).astype(int)
+    assert np.all(img[:, -4:] == 25)                               # the right edge is left blank, nothing cut off
+    short = np.asarray(label_bar(200, 20, "joint-pd: PASSED", "passed")).astype(int)
+    assert np.all(short[:, 120:] == 25)                            # a short label is drawn as it is

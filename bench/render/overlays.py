@@ -244,5 +244,10 @@ def label_bar(width: int, height: int, text: str, status: str) -> Image.Image:
     f = _font(max(9, round(height * 0.55)))
     colour = STATUS_COLOURS.get(status, AMBER)
     dr.rectangle([0, 0, max(4, height // 4), height], fill=colour)
+    room = width - (height // 4 + 6) - 4
+    if _text_width(dr, text, f) > room:          # too long for the strip: cut at a word and say so
+        while text and _text_width(dr, text + "...", f) > room:
+            text = text[:-1]
+        text = text.rstrip(" ,;:-") + "..."
     dr.text((height // 4 + 6, (height - getattr(f, "size", 10)) // 2 - 1), text, font=f, fill=colour[:3])
     return img

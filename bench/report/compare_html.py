@@ -214,6 +214,9 @@ def _section(two: TwoRuns, sid: str, page_dir: Path, embed_videos: bool) -> str:
         facts.append(f"<dt>{escape(side.label)}</dt><dd>{_badge(e.status)} controller "
                      f"{escape(str(e.result.get('controller', '?')))} &middot; {escape(deciding(e.result))}"
                      + (f" &middot; {escape(str(reason))}" if reason and e.status != "passed" else "") + "</dd>")
+    notes = [r.note for r in two.rows if r.scenario == sid and r.metric == "scenario" and r.note]
+    if notes:      # the scenario itself changed (its file, its seed): the runs are not like for like
+        facts.append(f"<dt>note</dt><dd class=scenario-note>{escape('; '.join(notes))}</dd>")
     rows = [r for r in two.metric_rows if r.scenario == sid]
     body = [head, f"<dl class=runs>{''.join(facts)}</dl>"]
     if rows:
