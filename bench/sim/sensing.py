@@ -54,7 +54,7 @@ RAY_ORIGIN_HEIGHT_M = 1e7
 #: Where the robot is parked in the ray-casting data, m below the world origin.
 PARK_Z_M = -1e6
 #: mj_multiRay took a ``normal`` output argument from MuJoCo 3.5 on.
-_MULTIRAY_NORMAL = "normal" in (getattr(mujoco.mj_multiRay, "__doc__", "") or "")
+_MULTIRAY_NORMAL = "normal:" in (getattr(mujoco.mj_multiRay, "__doc__", "") or "")
 #: Independent random stream of the sensing noise (with the episode seed and the episode's own constant).
 SENSING_STREAM = 13
 
