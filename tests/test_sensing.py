@@ -383,7 +383,10 @@ def test_without_a_sensing_key_nothing_changes(write_scenario, load_one):
         name: plain
         duration: 0.05
     """))
+    from bench.controllers.base import SensingInfo
+
     world, ep, rec = _run(sc)
+    assert NominalRobot(world.robot).sensing == SensingInfo()   # there before any episode, too
     assert rec.info.privileged is True and rec.info.height_scan_xy is None
     assert rec.info.foot_force is None and rec.info.joint_torque is False
     for row in rec.rows:
