@@ -2,9 +2,12 @@
 
 quad12 stands (joint PD) in front of low steps, so feet touch the ground and the
 scan sees edges; each row is one ``sensing:`` setting, the first none at all.
-Printed per row: the median over ``--repeats`` episodes of the wall time per
-control tick, and its ratio to the first row; then the cost of one scan alone
-(``HeightScanner.take``, median of many) by grid size.
+Printed per row: the median over ``--repeats`` episodes of the process CPU time
+per control tick over the tick loop (``EpisodeResult.cpu_time_s``: less moved by
+other processes on a shared machine than wall time), and its ratio to the first
+row; the rows take turns within each repeat, so a change of machine load falls on
+all of them. Then the cost of one scan alone (``HeightScanner.take``, median of
+many) by grid size.
 
     python tests/benchmarks/bench_sensing.py [--repeats 7] [--duration 2]
     PYTHONPATH=/path/to/other/checkout python tests/benchmarks/bench_sensing.py --plain-only
@@ -65,15 +68,16 @@ def scenario(tmp: Path, duration: float, sensing: str, name: str = "bench-sensin
     return load_scenarios([str(p)])[0]
 
 
-def per_tick_us(sc, repeats: int) -> float:
+def tick_cpu_us(sc) -> float:
+    """CPU time per control tick of one episode's tick loop, us."""
     man = manifest_for(sc)
-    times = []
-    for _ in range(repeats):
-        world = build_world(sc, man)
-        t0 = time.perf_counter()
-        ep = run_episode(world, sc, JointPDController(), NominalRobot(man))
-        times.append((time.perf_counter() - t0) / max(len(ep.trace), 1) * 1e6)
-    return statistics.median(times)
+    world = build_world(sc, man)
+    ep = run_episode(world, sc, JointPDController(), NominalRobot(man))
+    return ep.cpu_time_s / max(len(ep.trace), 1) * 1e6
+
+
+def per_tick_us(sc, repeats: int) -> float:
+    return statistics.median(tick_cpu_us(sc) for _ in range(repeats))
 
 
 def scan_us(tmp: Path, length: float, width: float, res: float, n: int = 300) -> tuple[int, float]:
@@ -103,12 +107,16 @@ def main() -> None:
     args = ap.parse_args()
     rows = ROWS[:1] if args.plain_only else ROWS
     with TemporaryDirectory() as tmp:
-        base = None
-        print(f"{'sensing':48s} {'us/tick':>9s} {'ratio':>6s}")
-        for label, text in rows:
-            us = per_tick_us(scenario(Path(tmp), args.duration, text), args.repeats)
-            base = base or us
-            print(f"{label:48s} {us:9.1f} {us / base:6.2f}")
+        scenarios = [scenario(Path(tmp), args.duration, text, f"row{i}") for i, (_, text) in enumerate(rows)]
+        samples: list[list[float]] = [[] for _ in rows]
+        for _ in range(args.repeats):
+            for i, sc in enumerate(scenarios):
+                samples[i].append(tick_cpu_us(sc))
+        base = statistics.median(samples[0])
+        print(f"{'sensing':48s} {'CPU us/tick':>11s} {'ratio':>6s}")
+        for (label, _), xs in zip(rows, samples):
+            us = statistics.median(xs)
+            print(f"{label:48s} {us:11.1f} {us / base:6.2f}")
         if args.plain_only:
             return
         print()
