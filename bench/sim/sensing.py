@@ -12,8 +12,8 @@ origin is put ``RAY_ORIGIN_HEIGHT_M`` (10^7 m) above the grid centre and each
 ray aims at its grid point: the rays are vertical to within 2e-7 rad for a grid
 of 2 m, so a hit lands at most ``r |z_hit - z_aim| / 10^7`` m sideways of its
 point (r: the point's distance from the grid centre, z_aim: trunk height minus
-nominal height); a box top reads exactly, a slope to about 1e-7 m, a point right
-on a step edge may read the riser. The rays are cast in a second ``MjData`` of
+nominal height); a box top reads to about 1e-9 m (the rounding of a 10^7 m ray
+length), a slope to about 1e-7 m, a point right on a step edge may read the riser. The rays are cast in a second ``MjData`` of
 the same model in which the robot (and with it every payload) is parked
 ``PARK_Z_M`` below the lowest terrain, so only terrain geoms can be hit (checked
 per hit as well: anything else reads NaN). Terrain is static, so that data is
