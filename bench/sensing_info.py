@@ -13,11 +13,18 @@ import numpy as np
 
 @dataclass(frozen=True)
 class SensingInfo:
-    """What the controller senses, given in ``reset`` as ``robot.sensing``.
+    """What the controller senses, given in ``reset`` as ``robot.sensing`` (from the scenario's ``sensing:``).
 
-    ``height_scan_xy[i, j]`` is the (x forward, y left) offset in m of scan point (i, j) from the trunk
-    origin projected vertically, in the yaw-aligned trunk frame: the world position of the point is
-    ``trunk_xy + Rz(trunk_yaw) @ height_scan_xy[i, j]`` at the instant the scan was taken.
+    ``privileged``: whether ``obs.privileged`` holds the true trunk state (else it is None).
+    ``height_scan_xy``: (nx, ny, 2) read-only array, or None without a height scan; ``height_scan_xy[i, j]``
+    is the (x forward, y left) offset in m of scan point (i, j) from the trunk origin projected vertically,
+    in the yaw-aligned trunk frame: the world position of the point is
+    ``trunk_xy + Rz(trunk_yaw) @ height_scan_xy[i, j]`` at the instant the scan was taken. Axis 0 of
+    ``obs.height_scan`` runs along the heading, axis 1 to the left.
+    ``height_scan_rate_hz``: scans per second (None: every control tick); ``height_scan_latency_s``: delay
+    from a scan to the controller seeing it, s. ``foot_force``: ``"normal"`` (``obs.foot_force`` is (F,),
+    N along the contact normal), ``"3d"`` ((F, 3), N, world axes) or None. ``joint_torque``: whether
+    ``obs.joint_torque`` ((J,), N m, the torque applied after limits and motor faults) is given.
     """
 
     privileged: bool = True

@@ -162,4 +162,7 @@ ATTRIBUTE_DOCS = {
     "com_offset_trunk": "whole-robot centre of mass relative to the trunk origin, trunk frame (3,), m",
     "num_joints": "J, the number of joints",
     "num_feet": "F, the number of feet",
+    "sensing": "what the controller senses beyond the standard observation (`SensingInfo`): whether the true "
+               "state is given, the height-scan points, the foot-force mode, joint torques; from the "
+               "scenario's `sensing:` key, set before `reset`",
 }
