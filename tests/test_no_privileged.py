@@ -62,6 +62,10 @@ def test_bench_run_no_privileged(stand, tmp_path, capsys):
     assert without["status"] == "passed"
     assert without["content_hash"] != with_truth["content_hash"]
     assert bench_main(["check", str(stand), "--no-privileged", "-q"]) == 0
+    # --resume does not take the run with the true state for one without it (the fingerprints differ).
+    assert bench_main(common + ["--out", str(tmp_path / "with"), "--no-privileged", "--resume"]) == 0
+    again = json.loads((tmp_path / "with" / "stand-short" / "result.json").read_text())
+    assert again["status"] == "passed" and again["content_hash"] == without["content_hash"]
 
 
 def test_plugin_ini_key_turns_the_truth_off(pytester):

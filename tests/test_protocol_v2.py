@@ -3,6 +3,8 @@ version 1 programs keep working unchanged on the same scenarios."""
 
 from __future__ import annotations
 
+import shutil
+import subprocess
 import sys
 from pathlib import Path
 
@@ -145,3 +147,16 @@ def test_the_handshake_describes_robot_sensing(scenario):
     assert plain == SensingInfo()
     with pytest.raises(ValueError, match="height_scan_xy"):
         sensing_from_header({"height_scan": "2 2 500 0", "height_scan_xy": "0 1 2"})
+
+
+@pytest.mark.skipif(not shutil.which("c++"), reason="no C++ compiler")
+def test_the_cpp_version_2_example(scenario, tmp_path):
+    exe = tmp_path / "scan"
+    subprocess.run(["c++", "-O1", "-o", str(exe), str(HERE / "fixtures" / "external" / "scan_controller.cpp")],
+                   check=True, capture_output=True, timeout=120)
+    inproc = run_job(Job(scenario, JointPDController(kp=KP, kd=KD))).result
+    ext = run_job(Job(scenario, f"exec:{exe}")).result
+    assert ext["status"] == "passed" and ext["trace_sha256"] == inproc["trace_sha256"]
+    m = ext["metrics"]
+    assert abs(m["controller.scan_max"] - 0.10) < 1e-6 and m["controller.scan_nan"] > 0
+    assert m["controller.privileged"] == 0.0

@@ -383,7 +383,10 @@ def test_without_a_sensing_key_nothing_changes(write_scenario, load_one):
         name: plain
         duration: 0.05
     """))
+    from bench.controllers.base import SensingInfo
+
     world, ep, rec = _run(sc)
+    assert NominalRobot(world.robot).sensing == SensingInfo()   # there before any episode, too
     assert rec.info.privileged is True and rec.info.height_scan_xy is None
     assert rec.info.foot_force is None and rec.info.joint_torque is False
     for row in rec.rows:
@@ -461,3 +464,36 @@ def test_json_schema_documents_the_sensing_key():
     for word in ("height_scan", "foot_force", "joint_torque", "privileged", "resolution", "dropout", "latency"):
         assert word in text
     assert "sensing" in schema["properties"]
+
+
+def test_a_controller_cannot_change_what_it_is_shown_next(write_scenario, load_one):
+    sc = load_one(write_scenario("""
+        name: vandal
+        duration: 0.05
+        terrain:
+          - blocks: {start: 0.3, heights: [0.1], block_length: 1.0}
+        sensing:
+          height_scan: {size: [1.0, 0.6], resolution: 0.1}
+          foot_force: {mode: normal}
+          joint_torque: {}
+    """))
+
+    class Vandal(Recorder):
+        def step(self, obs, command):
+            tau = super().step(obs, command)
+            k = len(self.rows)
+            if k % 3 == 1:
+                obs.height_scan[:] = 99.0       # scribbles on its copy
+                obs.foot_force[:] = -1.0
+                obs.joint_torque[:] = 7.0
+            elif k % 3 == 2:
+                obs.height_scan = None          # throws it away
+                obs.foot_force = obs.joint_torque = None
+            return tau
+
+    _, ep_v, vandal = _run(sc, Vandal())
+    _, ep_h, honest = _run(sc)
+    assert len(vandal.rows) == len(honest.rows) == 25
+    for a, b in zip(vandal.rows, honest.rows):
+        for key in ("height_scan", "foot_force", "joint_torque"):
+            np.testing.assert_array_equal(a[key], b[key])

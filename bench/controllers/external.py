@@ -34,9 +34,10 @@ Handshake, bench -> program (``J`` joints, ``F`` feet)::
 A program must ignore header lines it does not know (later versions of
 protocol 1 may add some before ``end``). It then answers ``READY 1`` or
 ``READY 2`` (the protocol version it speaks, one of ``versions``; anything
-after it on the line is ignored). ``height_scan_xy`` is only there with a
-height scan; the ``sensing`` lines describe the scenario's ``sensing:`` key
-(``robot.sensing`` of an in-process controller).
+after it on the line is ignored). The lines from ``privileged`` to
+``height_scan_xy`` describe the scenario's ``sensing:`` key (``robot.sensing``
+of an in-process controller); ``height_scan_xy`` is only there with a height
+scan.
 
 Each control tick ``k`` (0, 1, 2, ...), bench -> program, one line::
 

@@ -12,8 +12,8 @@ origin is put ``RAY_ORIGIN_HEIGHT_M`` (10^7 m) above the grid centre and each
 ray aims at its grid point: the rays are vertical to within 2e-7 rad for a grid
 of 2 m, so a hit lands at most ``r |z_hit - z_aim| / 10^7`` m sideways of its
 point (r: the point's distance from the grid centre, z_aim: trunk height minus
-nominal height); a box top reads exactly, a slope to about 1e-7 m, a point right
-on a step edge may read the riser. The rays are cast in a second ``MjData`` of
+nominal height); a box top reads to about 1e-9 m (the rounding of a 10^7 m ray
+length), a slope to about 1e-7 m, a point right on a step edge may read the riser. The rays are cast in a second ``MjData`` of
 the same model in which the robot (and with it every payload) is parked
 ``PARK_Z_M`` below the lowest terrain, so only terrain geoms can be hit (checked
 per hit as well: anything else reads NaN). Terrain is static, so that data is
@@ -54,7 +54,7 @@ RAY_ORIGIN_HEIGHT_M = 1e7
 #: Where the robot is parked in the ray-casting data, m below the world origin.
 PARK_Z_M = -1e6
 #: mj_multiRay took a ``normal`` output argument from MuJoCo 3.5 on.
-_MULTIRAY_NORMAL = "normal" in (getattr(mujoco.mj_multiRay, "__doc__", "") or "")
+_MULTIRAY_NORMAL = "normal:" in (getattr(mujoco.mj_multiRay, "__doc__", "") or "")
 #: Independent random stream of the sensing noise (with the episode seed and the episode's own constant).
 SENSING_STREAM = 13
 
