@@ -15,7 +15,7 @@ or a dropout. A cell is safe when no edge point lies within ``edge_margin_m`` of
 window: a morphological dilation of the edges) and the height range over that window is at most
 ``max_roughness_m`` plus what a plane of ``max_slope_deg`` spans across it (so ramps stay
 steppable, bumps and steeper ground do not). The heuristic
-foothold (Raibert's, from ``swing.py``) is moved to the nearest safe cell within
+foothold (the stance-centre heuristic of ``swing.py``) is moved to the nearest safe cell within
 ``max_shift_m``; when no cell in reach is safe it stays where it is. "Nearest" weighs a shift
 against the direction of travel by ``back_weight`` (a shift backward counts that many times its
 length; common practice, no source): a foot moved back behind an edge leaves the leg stretched
