@@ -95,7 +95,8 @@ def test_apex_search_sees_the_riser_between_liftoff_and_touchdown():
     assert m.max_height_along(0.85, 0.0, 1.05, 0.0) == pytest.approx(0.1)
 
 
-@pytest.mark.parametrize("plane", [(0.3, 0.0, 0.0), (0.1, math.tan(math.radians(12)), 0.0), (-0.2, 0.15, -0.3)])
+@pytest.mark.parametrize("plane", [(0.3, 0.0, 0.0), (0.1, math.tan(math.radians(12)), 0.0),
+                                   (-0.2, 0.15, -0.3)])
 def test_plane_fits_match_numpy_lstsq(plane):
     rng = np.random.default_rng(7)
     h, gx, gy = plane

@@ -14,14 +14,14 @@ height differs from a grid neighbour's by more than ``max_step_m`` (a riser, a b
 or a dropout. A cell is safe when no edge point lies within ``edge_margin_m`` of it (a square
 window: a morphological dilation of the edges) and the height range over that window is at most
 ``max_roughness_m`` plus what a plane of ``max_slope_deg`` spans across it (so ramps stay
-steppable, bumps and steeper ground do not). The heuristic
-foothold (the stance-centre heuristic of ``swing.py``) is moved to the nearest safe cell within
-``max_shift_m``; when no cell in reach is safe it stays where it is. "Nearest" weighs a shift
+steppable, bumps and steeper ground do not). The heuristic foothold of ``swing.py`` is moved to
+the nearest safe cell within ``max_shift_m``; when no cell in reach is safe it stays where it is.
+"Nearest" weighs a shift
 against the direction of travel by ``back_weight`` (a shift backward counts that many times its
 length; common practice, no source): a foot moved back behind an edge leaves the leg stretched
-behind the hip for the whole stance, one moved forward onto the next tread does not. To keep the target from
-jumping back and forth across an edge while the heuristic point moves during a swing, the
-previous tick's shift is kept while the shifted point is still safe (hysteresis).
+behind the hip for the whole stance, one moved forward onto the next tread does not. To keep
+the target from jumping back and forth across an edge while the heuristic point moves during a
+swing, the previous tick's shift is kept while the shifted point is still safe (hysteresis).
 
 Swing apex: the highest scan point within ``foot_radius_m`` sideways of the straight segment from
 lift-off to foothold, plus the foot-site height and the clearance.
@@ -132,7 +132,8 @@ class HeightScanMap:
         self._k_edge = max(1, int(math.ceil(edge_margin_m / self.res - 0.5 - 1e-9)))
         self._k_normal = max(1, int(round(normal_window_m / self.res)))
         self.max_step_m = float(max_step_m)
-        self._max_range = self.max_roughness_m + 2 * self._k_edge * self.res * math.tan(math.radians(max_slope_deg))
+        window_m = 2 * self._k_edge * self.res
+        self._max_range = self.max_roughness_m + window_m * math.tan(math.radians(max_slope_deg))
         # search offsets in cells, cheapest first, for travel forward (+1), backward (-1) and none (0)
         ks = int(math.ceil(max_shift_m / self.res))
         offs = [(di, dj) for di in range(-ks, ks + 1) for dj in range(-ks, ks + 1)]

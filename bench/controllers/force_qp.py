@@ -118,7 +118,7 @@ class _Pattern:
         self.lb[:] = -_BIG_FORCE
         self.sense = np.zeros(nx + m_ineq, dtype=c_int)
         self.mu = mu
-        self.normals = None   # per stance foot, the normal the pyramid rows were last written for (None: world z)
+        self.normals = None   # per stance foot: normal the pyramid rows were last written for (None: world z)
         self.problem = None   # the qpsolvers Problem over the same arrays, made when a wrapped solve needs it
 
 
