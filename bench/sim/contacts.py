@@ -57,6 +57,7 @@ class ContactTable:
             self.table.append(row)
         self.is_ground, self.is_fall = is_ground, is_fall
         self._found: list[tuple[int, float, int]] = []   # (contact, sign, foot) of this instant's foot contacts
+        self._frames: list[list[float]] = []             # this instant's contact frames, when there are foot contacts
         self._cf = np.zeros(6)
         n_feet = len(foot_geom_ids)
         self._zeros = [0.0] * (3 * n_feet)
@@ -85,6 +86,8 @@ class ContactTable:
                 found.append((i, sign, force_foot))
                 if dist[i] < CONTACT_DIST_M:
                     foot_contact[foot] = True
+        if found:   # the frames come from collision, which mj_step2 does not redo: read them once, here
+            self._frames = con.frame.tolist()
         return fell
 
     def fall_parts(self, m: mujoco.MjModel, d: mujoco.MjData) -> str:
@@ -102,11 +105,12 @@ class ContactTable:
         return "a fall geom touched the ground"
 
     def forces(self, m: mujoco.MjModel, d: mujoco.MjData, out: np.ndarray) -> None:
-        """Write each foot's summed contact force (world axes) into ``out`` (F, 3, zeros), if any foot touches."""
+        """Write each foot's summed contact force (world axes) into ``out`` ((F, 3) or flat (3F,), zeros), if any
+        foot touches. Reads the contact frames ``classify`` took at this instant."""
         found = self._found
         if not found:
             return
-        frames = d.contact.frame
+        frames = self._frames
         cf = self._cf
         acc = self._acc
         acc[:] = self._zeros
@@ -115,10 +119,13 @@ class ContactTable:
             c0, c1, c2, _, _, _ = cf.tolist()
             if sign < 0.0:   # -(a b + c d + e f) == (a (-b) + c (-d) + e (-f)) exactly: rounding is symmetric
                 c0, c1, c2 = -c0, -c1, -c2
-            f0, f1, f2, f3, f4, f5, f6, f7, f8 = frames[i].tolist()
+            f0, f1, f2, f3, f4, f5, f6, f7, f8 = frames[i]
             j = 3 * foot
             # frame.T @ cf[:3], added to a zeroed row, in a matrix-vector product's own order
             acc[j] += f0 * c0 + f3 * c1 + f6 * c2
             acc[j + 1] += f1 * c0 + f4 * c1 + f7 * c2
             acc[j + 2] += f2 * c0 + f5 * c1 + f8 * c2
-        out.reshape(-1)[:] = acc
+        if out.ndim == 1:   # a flat (3F,) row: no reshape view to make
+            out[:] = acc
+        else:
+            out.reshape(-1)[:] = acc
