@@ -2,8 +2,9 @@
 
 Built once per episode from the world's geom ids. Every geom falls in a small
 class (terrain or not, which foot if any, fall geom or not), and a class-by-class
-table says what a contact between two classes means, so a tick costs one list
-lookup per contact and no numpy call per contact. Only foot-ground contacts
+table says what a contact between two classes means, so classifying costs one list
+lookup per contact and no numpy call per contact; a sequence of geom pairs seen
+before (a stance keeps its contacts) is not classified again. Only foot-ground contacts
 (usually two to four) get any further work, and only when there are some.
 
 The ground reaction force on a foot is MuJoCo's own contact force
@@ -21,6 +22,8 @@ import numpy as np
 
 #: Contact distance below which a foot counts as touching, m.
 CONTACT_DIST_M = 0.002
+#: Classified geom-pair sequences kept per table (cleared when full; rough ground makes many).
+MAX_PLANS = 4096
 
 
 class ContactTable:
@@ -57,6 +60,7 @@ class ContactTable:
             self.table.append(row)
         self.is_ground, self.is_fall = is_ground, is_fall
         self._found: list[tuple[int, float, int]] = []   # (contact, sign, foot) of this instant's foot contacts
+        self._plans: dict[bytes, tuple[list, list, list]] = {}   # geom pairs' bytes -> _plan of them
         self._frames: list[list[float]] = []             # this instant's contact frames, when there are foot contacts
         self._cf = np.zeros(6)
         n_feet = len(foot_geom_ids)
@@ -65,30 +69,52 @@ class ContactTable:
 
     def classify(self, d: mujoco.MjData, foot_contact: np.ndarray) -> bool:
         """Mark feet touching the ground in ``foot_contact`` (cleared by the caller); True on a fall contact."""
-        found = self._found
-        found.clear()
         if not d.ncon:
+            self._found = []
             return False
         con = d.contact
-        cls, table = self.geom_class, self.table
-        dist = None
+        geom = con.geom
+        # The same sequence of geom pairs recurs tick after tick (a stance holds its contacts), so its
+        # classification is kept by the pairs' bytes; only the distances are looked at every tick.
+        key = geom.tobytes()
+        plan = self._plans.get(key)
+        if plan is None:
+            plan = self._plan(geom.tolist())
+            if len(self._plans) >= MAX_PLANS:
+                self._plans.clear()
+            self._plans[key] = plan
+        feet, falls, found = plan
+        self._found = found
+        if not found and not falls:
+            return False
+        dist = con.dist.tolist()
         fell = False
-        for i, (g1, g2) in enumerate(con.geom.tolist()):
-            hit = table[cls[g1]][cls[g2]]
-            if hit is None:
-                continue
-            if dist is None:
-                dist = con.dist.tolist()
-            foot, fall, sign, force_foot = hit
-            if fall and dist[i] < 0:
+        for i in falls:
+            if dist[i] < 0:
                 fell = True
-            if foot >= 0:
-                found.append((i, sign, force_foot))
-                if dist[i] < CONTACT_DIST_M:
-                    foot_contact[foot] = True
+        for i, foot in feet:
+            if dist[i] < CONTACT_DIST_M:
+                foot_contact[foot] = True
         if found:   # the frames come from collision, which mj_step2 does not redo: read them once, here
             self._frames = con.frame.tolist()
         return fell
+
+    def _plan(self, pairs: list[list[int]]) -> tuple[list, list, list]:
+        """For one sequence of contact geom pairs: (contact, foot) of foot-ground contacts, contacts that are a
+        fall if they penetrate, and (contact, sign, foot) of the foot-ground contacts for the force scan."""
+        cls, table = self.geom_class, self.table
+        feet, falls, found = [], [], []
+        for i, (g1, g2) in enumerate(pairs):
+            hit = table[cls[g1]][cls[g2]]
+            if hit is None:
+                continue
+            foot, fall, sign, force_foot = hit
+            if fall:
+                falls.append(i)
+            if foot >= 0:
+                feet.append((i, foot))
+                found.append((i, sign, force_foot))
+        return feet, falls, found
 
     def fall_parts(self, m: mujoco.MjModel, d: mujoco.MjData) -> str:
         """Which part of the robot touched what, for the fall reason (called once, when the robot fell)."""
