@@ -501,6 +501,9 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
             d.xfrc_applied[trunk, 3:] += np.cross(pt - d.xipos[trunk], f)
             ext_now[:] += f
 
+    # Module attributes the tick uses, bound once.
+    perf_counter, mj_step1, mj_step2, mj_step = time.perf_counter, mujoco.mj_step1, mujoco.mj_step2, mujoco.mj_step
+    more_substeps = range(substeps - 1)
     cpu0 = time.process_time()
     wall0 = time.perf_counter()
     step = 0
@@ -524,7 +527,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
 
             if has_forces:
                 apply_forces(step)
-            mujoco.mj_step1(m, d)
+            mj_step1(m, d)
 
             # Contacts of this instant, then the controller's observation: sensors, joints, contacts.
             foot_contact[:] = False
@@ -556,7 +559,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
             ctrl_command[:] = cmd_rows[k]
 
             # The controller.
-            c0 = watchdog.call_start = time.perf_counter()
+            c0 = watchdog.call_start = perf_counter()
             try:
                 tau = controller.step(ctrl_obs, ctrl_command)
                 watchdog.call_start = 0.0
@@ -572,7 +575,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 status = "timeout" if isinstance(exc, TimeoutError) else "error"   # e.g. an external program's wait
                 reason = raised_reason(exc, f"at tick {k} (t={t:.3f} s)")
                 break
-            c1 = time.perf_counter()
+            c1 = perf_counter()
             ctrl_ms[k] = (c1 - c0) * 1e3
             if c1 - watchdog.checked_at > watchdog.period_s and watchdog.active:
                 watchdog.check(c1, f"tick {k} (t={t:.3f} s)")
@@ -621,17 +624,17 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
             R_torque[k] = applied
             R_limit[k] = limit_now
 
-            mujoco.mj_step2(m, d)
+            mj_step2(m, d)
             step += 1
 
             if has_forces:
                 R_ext[k] = ext_now
             contacts.forces(m, d, R_force[k])
 
-            for _ in range(substeps - 1):
+            for _ in more_substeps:
                 if has_forces:
                     apply_forces(step)
-                mujoco.mj_step(m, d)
+                mj_step(m, d)
                 step += 1
 
             # End conditions.
