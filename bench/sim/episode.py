@@ -179,6 +179,9 @@ class _Watchdog:
             return
         self.active = False
         self.call_start = 0.0
+        # Ignore first, then cancel, then restore: an alarm already on its way when the timer is
+        # cancelled must not reach a default handler (which would end the process).
+        signal.signal(signal.SIGALRM, signal.SIG_IGN)
         signal.setitimer(signal.ITIMER_REAL, 0.0, 0.0)
         signal.signal(signal.SIGALRM, self._previous if self._previous is not None else signal.SIG_DFL)
 
