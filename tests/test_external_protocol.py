@@ -60,7 +60,7 @@ def test_exec_name_resolves_through_the_registry(scenario):
     (["--garbage-at", "2"], "error", ["'hello from the controller'", "at tick 2", "expected 'TAU 2'"]),
     (["--short-at", "1"], "error", ["at tick 1", "followed by 12 torques"]),
     (["--wrong-tick-at", "4"], "error", ["for tick '11'", "at tick 4"]),
-    (["--version", "2"], "error", ["in reset()", "protocol version '2'", "QBX 1"]),
+    (["--version", "3"], "error", ["in reset()", "protocol version '3'", "QBX 1 and 2"]),
     (["--hang-at", "3"], "timeout", ["ExternalControllerTimeout", "within 0.3 s", "at tick 3"]),
 ])
 def test_faults_become_the_episode_status_with_a_reason(scenario, args, status, words):

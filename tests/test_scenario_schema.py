@@ -60,7 +60,7 @@ def test_scenario_fields_follow_spec():
     keys = {f.name for f in yaml_fields(schema.Scenario)}
     assert keys == {"name", "description", "tags", "robot", "duration", "timestep", "control_rate", "seed", "ground",
                     "initial", "score_from", "terrain", "payloads", "disturbances", "faults", "commands", "criteria",
-                    "trials", "randomize"}
+                    "trials", "randomize", "sensing"}
     computed = {f.name for f in dataclasses.fields(schema.Scenario)} - keys
     assert {"id", "slug", "source", "content_hash", "document", "variant"} <= computed
     payload = {f.name for f in yaml_fields(schema.Payload)}

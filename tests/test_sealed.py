@@ -151,8 +151,10 @@ def test_the_runner_refreshes_every_observation_field_into_the_controllers_copy(
         assert np.array_equal(c, tr["foot_contact"][k]) and np.array_equal(pos, tr["base_pos"][k])
         assert np.array_equal(quat, tr["base_quat"][k])    # the IMU sits at the trunk origin, aligned
     # every field of the observation is one the runner fills (a new field must be added to the runner)
+    # (height_scan, foot_force and joint_torque: filled by bench.sim.sensing, checked in test_sensing.py)
     assert {f.name for f in dataclasses.fields(Observation)} == {
-        "t", "imu_quat", "imu_gyro", "imu_accel", "joint_pos", "joint_vel", "foot_contact", "privileged"}
+        "t", "imu_quat", "imu_gyro", "imu_accel", "joint_pos", "joint_vel", "foot_contact", "privileged",
+        "height_scan", "foot_force", "joint_torque"}
 
 
 def test_in_process_controller_can_still_reach_the_simulation_known_limit(stand):
@@ -171,7 +173,8 @@ def test_the_frame_carries_every_observation_field():
 
     fields = [f.name for f in dataclasses.fields(Observation) if f.name != "privileged"]
     fields += [f"privileged.{f.name}" for f in dataclasses.fields(Privileged)]
-    assert sorted(fields) == sorted(FRAME_FIELDS)
+    # gait_hint is carried (protocol 2) and read with getattr, before and after Observation declares it.
+    assert sorted(set(fields) | {"gait_hint"}) == sorted(FRAME_FIELDS)
 
 
 # -- sealed: no way to the world, same physics --------------------------------------------------

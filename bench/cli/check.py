@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from bench.cli.common import add_robot_option, load_or_report
+from bench.cli.common import add_privileged_option, add_robot_option, load_or_report
 
 
 def register(sub) -> None:
@@ -12,12 +12,14 @@ def register(sub) -> None:
     p.add_argument("--root", action="append", default=[], metavar="DIR",
                    help="extra folder that scenarios may reference files in (repeatable)")
     add_robot_option(p)
+    add_privileged_option(p)
     p.add_argument("-q", "--quiet", action="store_true", help="print nothing when valid")
     p.set_defaults(func=run)
 
 
 def run(args) -> int:
-    scenarios = load_or_report(args.paths, args.root, robot=args.robot)
+    scenarios = load_or_report(args.paths, args.root, robot=args.robot,
+                               no_privileged=getattr(args, "no_privileged", False))
     if scenarios is None:
         return 2
     if not args.quiet:

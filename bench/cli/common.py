@@ -8,13 +8,15 @@ from bench.errors import ScenarioError, ScenarioErrors
 from bench.report.tables import print_table  # noqa: F401 - re-exported for the subcommands
 
 
-def load_or_report(paths: list[str], roots: list[str] | None = None, robot: str | None = None):
-    """Load and check scenarios (robot checks included; ``robot`` replaces every scenario's robot);
-    on problems print each as ``path:line:col: message`` and return None."""
+def load_or_report(paths: list[str], roots: list[str] | None = None, robot: str | None = None,
+                   no_privileged: bool = False):
+    """Load and check scenarios (robot checks included; ``robot`` replaces every scenario's robot,
+    ``no_privileged`` turns the true state off in all); on problems print each as
+    ``path:line:col: message`` and return None."""
     from bench.run.load import load_checked
 
     try:
-        return load_checked(list(paths), roots or [], robot=robot)
+        return load_checked(list(paths), roots or [], robot=robot, no_privileged=no_privileged)
     except ScenarioErrors as exc:
         for err in exc.errors:
             print(str(err), file=sys.stderr)
@@ -31,3 +33,11 @@ def add_robot_option(p) -> None:
     p.add_argument("--robot", default=None, metavar="NAME|MANIFEST",
                    help="replace every scenario's robot for this run: a bundled robot's name (e.g. quad30) or "
                         "a robot manifest.yaml (bench robot init drafts one)")
+
+
+def add_privileged_option(p) -> None:
+    """``--no-privileged``: no scenario gives the controller the true state (same for run, check, limit)."""
+    p.add_argument("--no-privileged", action="store_true",
+                   help="set sensing.privileged to false in every scenario for this run: obs.privileged is None, "
+                        "so a controller shows it never needs the true trunk state (the scenarios' content "
+                        "hashes change with it, so results of such a run are told apart)")

@@ -14,7 +14,7 @@ import sys
 import time
 from pathlib import Path
 
-from bench.cli.common import add_robot_option, load_or_report
+from bench.cli.common import add_privileged_option, add_robot_option, load_or_report
 from bench.cli.run import add_execution_options, executor_options
 
 ORDER = 36
@@ -47,6 +47,7 @@ def register(sub) -> None:
     p.add_argument("--root", action="append", default=[], metavar="DIR",
                    help="extra folder that scenarios may reference files in (repeatable)")
     add_robot_option(p)
+    add_privileged_option(p)
     add_execution_options(p)
     p.set_defaults(func=run)
 
@@ -89,7 +90,8 @@ def run(args) -> int:
         raise UsageError("give --x PATH LO HI and --y PATH LO HI, or --direction-of PATH LO HI")
     if args.grid < 2 or args.levels < 0 or args.budget < args.grid ** 2:
         raise UsageError(f"--grid must be >= 2, --levels >= 0 and --budget at least grid^2 ({args.grid ** 2})")
-    scenarios = load_or_report([args.scenario], args.root, robot=args.robot)
+    scenarios = load_or_report([args.scenario], args.root, robot=args.robot,
+                               no_privileged=getattr(args, "no_privileged", False))
     if scenarios is None:
         return 2
     if len(scenarios) > 1:

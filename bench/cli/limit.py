@@ -16,7 +16,7 @@ import sys
 import time
 from pathlib import Path
 
-from bench.cli.common import add_robot_option, load_or_report
+from bench.cli.common import add_privileged_option, add_robot_option, load_or_report
 from bench.cli.run import add_execution_options, executor_options
 from bench.run.plan import DEFAULT_CONTROLLER
 
@@ -57,6 +57,7 @@ def register(sub) -> None:
     p.add_argument("--root", action="append", default=[], metavar="DIR",
                    help="extra folder that the scenario may reference files in (repeatable)")
     add_robot_option(p)
+    add_privileged_option(p)
     add_execution_options(p)
     p.set_defaults(func=run)
 
@@ -102,7 +103,8 @@ def run(args) -> int:
         raise UsageError(f"--tol must be > 0, got {args.tol:g}")
     if args.pass_rate is not None and not 0.0 < args.pass_rate <= 1.0:
         raise UsageError(f"--pass-rate must be in (0, 1], got {args.pass_rate:g}")
-    scenarios = load_or_report([args.scenario], args.root, robot=args.robot)
+    scenarios = load_or_report([args.scenario], args.root, robot=args.robot,
+                               no_privileged=getattr(args, "no_privileged", False))
     if scenarios is None:
         return 2
     sc = _pick(scenarios, args.only, args.scenario)

@@ -5,7 +5,7 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from bench.cli.common import add_robot_option, load_or_report
+from bench.cli.common import add_privileged_option, add_robot_option, load_or_report
 from bench.report.tables import RESULT_HEADER, deciding_text, print_table, print_trials, result_rows  # noqa: F401
 from bench.run.plan import DEFAULT_CONTROLLER
 
@@ -28,6 +28,7 @@ def register(sub) -> None:
     p.add_argument("--root", action="append", default=[], metavar="DIR",
                    help="extra folder that scenarios may reference files in (repeatable)")
     add_robot_option(p)
+    add_privileged_option(p)
     p.add_argument("--tick-timeout", type=float, default=2.0, metavar="S",
                    help="wall-clock limit for one controller call, s (default 2; 0 means no limit)")
     p.add_argument("--episode-timeout", type=float, default=600.0, metavar="S",
@@ -99,7 +100,8 @@ def run(args) -> int:
     if getattr(args, "video", "none") != "none":
         from bench.cli.render import options_from
         options_from(args)          # bad video options are invalid input: nothing is run
-    scenarios = load_or_report(args.paths, args.root, robot=args.robot)
+    scenarios = load_or_report(args.paths, args.root, robot=args.robot,
+                               no_privileged=getattr(args, "no_privileged", False))
     if scenarios is None:
         return 2
     limits = EpisodeLimits(tick_timeout_s=args.tick_timeout, episode_timeout_s=args.episode_timeout)

@@ -14,6 +14,8 @@ from typing import TYPE_CHECKING, Protocol, runtime_checkable
 
 import numpy as np
 
+from bench.sensing_info import SensingInfo  # noqa: F401 - re-exported: what ``robot.sensing`` holds
+
 if TYPE_CHECKING:  # pragma: no cover - typing only
     from bench.robot.model import NominalRobot
 
@@ -38,7 +40,11 @@ class Observation:
     joint_pos: np.ndarray = field(default_factory=lambda: np.zeros(0))  # (J,) rad
     joint_vel: np.ndarray = field(default_factory=lambda: np.zeros(0))  # (J,) rad/s
     foot_contact: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=bool))  # (F,)
-    privileged: Privileged = field(default_factory=Privileged)
+    privileged: Privileged | None = field(default_factory=Privileged)  # None when the scenario says privileged: false
+    # Extra sensors (scenario key ``sensing:``); None when the scenario does not configure them.
+    height_scan: np.ndarray | None = None   # (nx, ny) world z of the terrain, m; NaN: no reading
+    foot_force: np.ndarray | None = None    # (F,) normal force N, or (F, 3) world-frame force N
+    joint_torque: np.ndarray | None = None  # (J,) measured joint torque, N m
 
     @classmethod
     def zeros(cls, n_joints: int, n_feet: int) -> "Observation":

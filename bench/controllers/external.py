@@ -1,4 +1,4 @@
-"""A controller that is a separate program, spoken to over its stdin/stdout (protocol ``QBX`` version 1).
+"""A controller that is a separate program, spoken to over its stdin/stdout (protocol ``QBX``, versions 1 and 2).
 
 The bench starts the program once per episode (in ``reset``), sends it a
 handshake describing the robot and the rates, then, every control tick, one
@@ -23,11 +23,21 @@ Handshake, bench -> program (``J`` joints, ``F`` feet)::
     nominal_pose <J floats, rad>
     nominal_height_m <float>
     mass_kg <float>
+    versions 1 2
+    privileged <1: the true trunk state is given, 0: not>
+    foot_force <none | normal | 3d>
+    joint_torque <0 | 1>
+    height_scan <nx> <ny> <scans per second> <latency s>     (0 0 0 0: no height scan)
+    height_scan_xy <2 nx ny floats, m: x y of point (0,0), (0,1), ... (i along the heading, j to the left)>
     end
 
 A program must ignore header lines it does not know (later versions of
-protocol 1 may add some before ``end``). It then answers ``READY 1`` (the
-protocol version it speaks; anything after it on the line is ignored).
+protocol 1 may add some before ``end``). It then answers ``READY 1`` or
+``READY 2`` (the protocol version it speaks, one of ``versions``; anything
+after it on the line is ignored). The lines from ``privileged`` to
+``height_scan_xy`` describe the scenario's ``sensing:`` key (``robot.sensing``
+of an in-process controller); ``height_scan_xy`` is only there with a height
+scan.
 
 Each control tick ``k`` (0, 1, 2, ...), bench -> program, one line::
 
@@ -36,7 +46,20 @@ Each control tick ``k`` (0, 1, 2, ...), bench -> program, one line::
 
 (the command is body frame; the quaternion is the trunk orientation in the
 world; gyro and accel are body frame; ``base_pos`` and ``base_linvel`` are
-privileged true state, world frame.) The program answers::
+privileged true state, world frame, ``nan`` when the scenario says
+``privileged: false``.)
+
+Version 2 (``READY 2``) sends, in this order, only what the scenario gives::
+
+    OBS <k> <t> <vx> <vy> <yaw_rate> <quat w x y z> <gyro x y z> <accel x y z>
+        <joint_pos J> <joint_vel J> <foot_contact F> <gait_hint>
+        [<base_pos x y z> <base_linvel x y z>]        when privileged is 1
+        [<height_scan nx*ny, m, row-major: i along the heading, j to the left; nan: no reading>]
+        [<foot_force F normal N, or 3F world-frame x y z per foot, N>]
+        [<joint_torque J, N m>]
+
+``gait_hint`` is the command's gait hint as a code: 0 none, 1 stand, 2 trot,
+3 pace, 4 bound, 5 walk. The program answers, in either version::
 
     TAU <k> <J floats, N m, manifest order>
 
@@ -74,10 +97,16 @@ from pathlib import Path
 
 import numpy as np
 
-from bench.controllers.base import Observation
+from bench.controllers.base import Observation, Privileged, SensingInfo
 
 PROTOCOL = "QBX"
+#: The version on the handshake's first line (every program reads it; ``versions`` offers the rest).
 PROTOCOL_VERSION = 1
+#: The versions this bench speaks; a program picks one in its READY line.
+PROTOCOL_VERSIONS = (1, 2)
+#: Gait hint names -> the integer code of protocol 2 (0: no hint).
+GAIT_CODES = {"stand": 1, "trot": 2, "pace": 3, "bound": 4, "walk": 5}
+GAIT_NAMES = {code: name for name, code in GAIT_CODES.items()}
 PREFIX = "exec:"
 #: Default wait for one torque line, s (the runner's own per-tick limit defaults to the same).
 DEFAULT_TICK_TIMEOUT_S = float(os.environ.get("BENCH_EXEC_TICK_TIMEOUT", "2.0"))
@@ -112,9 +141,167 @@ def _num(x: float) -> str:
     return repr(float(x))
 
 
+def sensing_lines(sensing: SensingInfo | None, control_dt: float) -> list[str]:
+    """The handshake lines that describe ``robot.sensing`` (see the module docstring)."""
+    s = sensing if sensing is not None else SensingInfo()
+    lines = [
+        "versions " + " ".join(map(str, PROTOCOL_VERSIONS)),
+        f"privileged {int(bool(s.privileged))}",
+        f"foot_force {s.foot_force or 'none'}",
+        f"joint_torque {int(bool(s.joint_torque))}",
+    ]
+    if s.height_scan_xy is None:
+        lines.append("height_scan 0 0 0 0")
+    else:
+        nx, ny = s.height_scan_xy.shape[:2]
+        rate = s.height_scan_rate_hz if s.height_scan_rate_hz is not None else 1.0 / control_dt
+        lines.append(f"height_scan {nx} {ny} {_num(rate)} {_num(s.height_scan_latency_s)}")
+        lines.append("height_scan_xy " + " ".join(map(_num, np.asarray(s.height_scan_xy).reshape(-1))))
+    return lines
+
+
+def sensing_from_header(header: dict[str, str]) -> SensingInfo:
+    """``robot.sensing`` as a handshake's lines describe it (``header``: key -> rest of the line).
+
+    Raises ``ValueError`` naming the line when one is malformed; absent lines mean today's defaults.
+    """
+    def ints(key: str, n: int) -> list[int]:
+        parts = header.get(key, "").split()
+        try:
+            return [int(float(p)) for p in parts[:n]]
+        except ValueError:
+            raise ValueError(f"handshake line {key!r} holds a non-number: {header.get(key, '')[:160]!r}") from None
+
+    privileged = header.get("privileged", "1").strip() != "0"
+    foot = header.get("foot_force", "none").strip() or "none"
+    if foot not in ("none", "normal", "3d"):
+        raise ValueError(f"handshake line 'foot_force' is {foot[:40]!r}; expected none, normal or 3d")
+    torque = header.get("joint_torque", "0").strip() not in ("", "0")
+    xy, rate, latency = None, None, 0.0
+    scan = header.get("height_scan", "0 0 0 0").split()
+    dims = ints("height_scan", 2) if scan else [0, 0]
+    if len(dims) == 2 and dims[0] > 0 and dims[1] > 0:
+        nx, ny = dims
+        try:
+            rate, latency = float(scan[2]), float(scan[3])
+            flat = np.array([float(x) for x in header.get("height_scan_xy", "").split()], dtype=float)
+        except (IndexError, ValueError):
+            raise ValueError("handshake lines 'height_scan'/'height_scan_xy' are malformed") from None
+        if flat.size != 2 * nx * ny:
+            raise ValueError(f"handshake line 'height_scan_xy' holds {flat.size} numbers; expected {2 * nx * ny}")
+        xy = flat.reshape(nx, ny, 2)
+        xy.setflags(write=False)
+    return SensingInfo(privileged=privileged, height_scan_xy=xy, foot_force=None if foot == "none" else foot,
+                       joint_torque=torque, height_scan_rate_hz=rate, height_scan_latency_s=latency)
+
+
+class ObservationLayout:
+    """Where each number of an observation sits in an ``OBS`` line (and a sealed frame) of one protocol version.
+
+    Index 0 is the tick. Version 1 always carries the privileged state (``nan`` when it is withheld);
+    version 2 carries the gait hint and then only what ``sensing`` gives.
+    """
+
+    def __init__(self, n_joints: int, n_feet: int, version: int = 1, sensing: SensingInfo | None = None):
+        s = sensing if sensing is not None else SensingInfo()
+        J, F = int(n_joints), int(n_feet)
+        self.version, self.J, self.F = int(version), J, F
+        i = 15 + 2 * J + F
+        self.gait = None
+        self.privileged = None
+        self.scan = self.foot = self.torque = None
+        self.scan_shape = None
+        self.foot_shape = None
+        if self.version == 1:
+            self.privileged = slice(i, i + 6)
+            i += 6
+        else:
+            self.gait = i
+            i += 1
+            if s.privileged:
+                self.privileged = slice(i, i + 6)
+                i += 6
+            if s.height_scan_xy is not None:
+                self.scan_shape = tuple(s.height_scan_xy.shape[:2])
+                n = self.scan_shape[0] * self.scan_shape[1]
+                self.scan = slice(i, i + n)
+                i += n
+            if s.foot_force is not None:
+                self.foot_shape = (F, 3) if s.foot_force == "3d" else (F,)
+                n = 3 * F if s.foot_force == "3d" else F
+                self.foot = slice(i, i + n)
+                i += n
+            if s.joint_torque:
+                self.torque = slice(i, i + J)
+                i += J
+        self.size = i
+
+    def pack(self, row: np.ndarray, k: int, obs, command) -> None:
+        """Write tick ``k``'s observation and command into ``row`` (an ``OBS`` line's numbers, tick first)."""
+        J, F = self.J, self.F
+        row[0] = k
+        row[1] = obs.t
+        row[2:5] = command
+        row[5:9] = obs.imu_quat
+        row[9:12] = obs.imu_gyro
+        row[12:15] = obs.imu_accel
+        row[15:15 + J] = obs.joint_pos
+        row[15 + J:15 + 2 * J] = obs.joint_vel
+        row[15 + 2 * J:15 + 2 * J + F] = obs.foot_contact
+        if self.gait is not None:
+            row[self.gait] = GAIT_CODES.get(getattr(obs, "gait_hint", None), 0)
+        p = self.privileged
+        if p is not None:
+            priv = obs.privileged
+            if priv is None:
+                row[p] = np.nan
+            else:
+                row[p.start:p.start + 3] = priv.base_pos
+                row[p.start + 3:p.stop] = priv.base_linvel
+        for sl, value in ((self.scan, obs.height_scan), (self.foot, obs.foot_force), (self.torque, obs.joint_torque)):
+            if sl is not None:
+                row[sl] = np.nan if value is None else np.asarray(value, dtype=float).reshape(-1)
+
+    def unpack(self, row: np.ndarray, obs, command: np.ndarray) -> int:
+        """Fill ``obs`` and ``command`` in place from ``row``; return the tick number."""
+        J, F = self.J, self.F
+        obs.t = float(row[1])
+        command[:] = row[2:5]
+        obs.imu_quat[:] = row[5:9]
+        obs.imu_gyro[:] = row[9:12]
+        obs.imu_accel[:] = row[12:15]
+        obs.joint_pos[:] = row[15:15 + J]
+        obs.joint_vel[:] = row[15 + J:15 + 2 * J]
+        np.not_equal(row[15 + 2 * J:15 + 2 * J + F], 0.0, out=obs.foot_contact)
+        if self.gait is not None:
+            code = row[self.gait]
+            obs.gait_hint = GAIT_NAMES.get(int(code)) if code == code else None
+        p = self.privileged
+        if p is None:
+            obs.privileged = None
+        else:
+            if obs.privileged is None:
+                obs.privileged = Privileged()
+            obs.privileged.base_pos[:] = row[p.start:p.start + 3]
+            obs.privileged.base_linvel[:] = row[p.start + 3:p.stop]
+        if self.scan is not None:
+            if obs.height_scan is None or obs.height_scan.shape != self.scan_shape:
+                obs.height_scan = np.zeros(self.scan_shape)
+            obs.height_scan.reshape(-1)[:] = row[self.scan]
+        if self.foot is not None:
+            if obs.foot_force is None or obs.foot_force.shape != self.foot_shape:
+                obs.foot_force = np.zeros(self.foot_shape)
+            obs.foot_force.reshape(-1)[:] = row[self.foot]
+        if self.torque is not None:
+            if obs.joint_torque is None or obs.joint_torque.shape != (J,):
+                obs.joint_torque = np.zeros(J)
+            obs.joint_torque[:] = row[self.torque]
+        return int(row[0])
+
+
 def handshake_header(robot, control_dt: float, extra_lines=()) -> str:
-    """The protocol's handshake for ``robot``; ``extra_lines`` go before ``end`` (programs ignore lines they
-    do not know)."""
+    """The protocol's handshake for ``robot`` (its ``sensing`` included); ``extra_lines`` go before ``end``
+    (programs ignore lines they do not know)."""
     man = robot.manifest
     feet = [getattr(f, "name", str(f)) for f in man.feet]
     lines = [
@@ -128,6 +315,7 @@ def handshake_header(robot, control_dt: float, extra_lines=()) -> str:
         "nominal_pose " + " ".join(map(_num, robot.nominal_pose)),
         f"nominal_height_m {_num(robot.nominal_height)}",
         f"mass_kg {_num(robot.mass_kg)}",
+        *sensing_lines(getattr(robot, "sensing", None), control_dt),
         *extra_lines,
         "end",
     ]
@@ -135,25 +323,14 @@ def handshake_header(robot, control_dt: float, extra_lines=()) -> str:
 
 
 def observation_frame_size(n_joints: int, n_feet: int) -> int:
-    """Numbers in one observation, in protocol order: tick, time, command, IMU, joints, contacts, privileged."""
+    """Numbers in one version-1 observation, in protocol order: tick, time, command, IMU, joints, contacts,
+    privileged."""
     return 2 + 3 + 4 + 3 + 3 + 2 * n_joints + n_feet + 3 + 3
 
 
 def pack_observation(row: np.ndarray, k: int, obs, command) -> None:
-    """Write tick ``k``'s observation and command into ``row`` in protocol order (an ``OBS`` line's numbers)."""
-    J, F = len(obs.joint_pos), len(obs.foot_contact)
-    row[0] = k
-    row[1] = obs.t
-    row[2:5] = command
-    row[5:9] = obs.imu_quat
-    row[9:12] = obs.imu_gyro
-    row[12:15] = obs.imu_accel
-    row[15:15 + J] = obs.joint_pos
-    row[15 + J:15 + 2 * J] = obs.joint_vel
-    i = 15 + 2 * J
-    row[i:i + F] = obs.foot_contact
-    row[i + F:i + F + 3] = obs.privileged.base_pos
-    row[i + F + 3:i + F + 6] = obs.privileged.base_linvel
+    """Write tick ``k``'s observation and command into ``row`` in version-1 order (an ``OBS`` line's numbers)."""
+    ObservationLayout(len(obs.joint_pos), len(obs.foot_contact)).pack(row, k, obs, command)
 
 
 def _signal_group(pgid: int, sig: int) -> bool:
@@ -243,6 +420,14 @@ class StderrTail:
             return bytes(self.buf[-self.limit:])
 
 
+def answered_version(token: bytes) -> int | None:
+    """The protocol version a READY line names, if this bench speaks it."""
+    for v in PROTOCOL_VERSIONS:
+        if token == str(v).encode():
+            return v
+    return None
+
+
 class _LineReader:
     """Reads whole lines from a pipe with a deadline (select on the raw descriptor, no Python buffering)."""
 
@@ -280,7 +465,7 @@ class _LineReader:
 
 
 class ExternalController:
-    """Runs ``argv`` as a controller speaking protocol QBX 1 over stdin/stdout (see the module docstring)."""
+    """Runs ``argv`` as a controller speaking protocol QBX 1 or 2 over stdin/stdout (see the module docstring)."""
 
     def __init__(self, argv: list[str] | str, *, tick_timeout_s: float | None = None,
                  start_timeout_s: float | None = None, cwd: str | Path | None = None,
@@ -396,32 +581,37 @@ class ExternalController:
         self._stats = {}
         self._start()
         try:
-            self._handshake(handshake_header(robot, control_dt))
+            version = self._handshake(handshake_header(robot, control_dt))
         except BaseException:
             self._abort()
             raise
         self._tick = 0
         self._tau = np.zeros(J)
+        self.version = version
+        self._layout = ObservationLayout(J, F, version, getattr(robot, "sensing", None))
         # One preallocated row of every observation number, in protocol order (the tick first).
-        self._row = np.zeros(observation_frame_size(J, F))
+        self._row = np.zeros(self._layout.size)
         self._fmt = "OBS %d " + " ".join(["%r"] * (len(self._row) - 1)) + "\n"
 
-    def _handshake(self, header: str) -> None:
+    def _handshake(self, header: str) -> int:
+        """Send the handshake; return the protocol version the program answered."""
         when = "during the handshake"
         self._send(header, when)
         line = self._receive(self.start_timeout_s, when, "READY line")
         parts = line.split()
         if len(parts) < 2 or parts[0] != b"READY":
             raise ExternalControllerError(f"controller program answered the handshake with {_quote(line)}; "
-                                          f"expected 'READY {PROTOCOL_VERSION}'")
-        if parts[1] != str(PROTOCOL_VERSION).encode():
+                                          f"expected 'READY {PROTOCOL_VERSION}' or 'READY {PROTOCOL_VERSIONS[-1]}'")
+        version = answered_version(parts[1])
+        if version is None:
             raise ExternalControllerError(f"controller program speaks protocol version {_quote(parts[1])}; "
-                                          f"this bench speaks {PROTOCOL} {PROTOCOL_VERSION}")
+                                          f"this bench speaks {PROTOCOL} {' and '.join(map(str, PROTOCOL_VERSIONS))}")
         self.program_name = b" ".join(parts[2:]).decode("utf-8", "replace") or None
+        return version
 
     def step(self, obs: Observation, command: np.ndarray) -> np.ndarray:
         row, k = self._row, self._tick
-        pack_observation(row, k, obs, command)
+        self._layout.pack(row, k, obs, command)
         # %r of a float is its shortest round-trip text; foot contacts go out as 0.0/1.0.
         text = self._fmt % (k, *row.tolist()[1:])
         try:

@@ -9,16 +9,20 @@ process keeps the world, the scenario and the scoring; the child never holds a
 reference to any of them, so no Python trick inside the controller
 (``sys._getframe``, ``gc.get_objects``, ``object.__setattr__``) can reach them.
 
-The conversation is protocol QBX version 1 (:mod:`bench.controllers.external`)
-with one addition, offered in the handshake: the header line ``frames f64le``.
-A program that accepts it answers ``READY 1 frames=f64le ...`` and from then on
-every tick is a fixed-size binary frame of little-endian IEEE-754 doubles
-instead of a text line, so the numbers cross bit for bit without formatting:
+The conversation is protocol QBX (:mod:`bench.controllers.external`), version 1
+or 2 as the child answers (the bundled child answers 2), with one addition,
+offered in the handshake: the header line ``frames f64le``. A program that
+accepts it answers ``READY 2 frames=f64le ...`` (or ``READY 1 ...``) and from
+then on every tick is a fixed-size binary frame of little-endian IEEE-754
+doubles instead of a text line, so the numbers cross bit for bit without
+formatting:
 
-- bench -> program, one frame per tick: ``k t vx vy yaw_rate quat(4) gyro(3)
-  accel(3) joint_pos(J) joint_vel(J) foot_contact(F) base_pos(3)
-  base_linvel(3)``: the fields of an ``OBS`` line, in the same order, the tick
-  number first (``2 + 3 + 4 + 3 + 3 + 2J + F + 6`` doubles);
+- bench -> program, one frame per tick: the numbers of an ``OBS`` line of the
+  answered version, in the same order, the tick number first (version 1:
+  ``k t vx vy yaw_rate quat(4) gyro(3) accel(3) joint_pos(J) joint_vel(J)
+  foot_contact(F) base_pos(3) base_linvel(3)``, ``2 + 3 + 4 + 3 + 3 + 2J + F + 6``
+  doubles; version 2: the gait hint after the contacts, then only the sensors
+  the scenario gives, see :class:`~bench.controllers.external.ObservationLayout`);
 - program -> bench: ``k tau(J)``;
 - end of episode: a frame whose first double is ``-1`` (``BYE``); the program
   answers one text line ``STATS <json object name -> number>`` and exits.
@@ -57,8 +61,7 @@ import numpy as np
 
 from bench.controllers.external import handshake_header as _protocol_header
 from bench.controllers.external import (
-    PROTOCOL_VERSION, ExternalControllerError, ExternalControllerTimeout, observation_frame_size,
-    pack_observation,
+    PROTOCOL_VERSIONS, ExternalControllerError, ExternalControllerTimeout, ObservationLayout, answered_version,
 )
 
 PREFIX = "sealed:"
@@ -99,11 +102,12 @@ class SealedControllerTimeout(SealedControllerError, ExternalControllerTimeout):
 #: The Observation fields a frame carries (``privileged`` as its two arrays). A field added to the
 #: Observation must be added here, to the frame and to the text protocol, or sealed runs lose it.
 FRAME_FIELDS = ("t", "imu_quat", "imu_gyro", "imu_accel", "joint_pos", "joint_vel", "foot_contact",
-                "privileged.base_pos", "privileged.base_linvel")
+                "privileged.base_pos", "privileged.base_linvel", "height_scan", "foot_force", "joint_torque",
+                "gait_hint")
 
 
 def unpack_observation(row: np.ndarray, obs, command: np.ndarray) -> int:
-    """Fill ``obs`` and ``command`` in place from ``row``; return the tick number."""
+    """Fill ``obs`` and ``command`` in place from a version-1 ``row``; return the tick number."""
     J, F = len(obs.joint_pos), len(obs.foot_contact)
     obs.t = float(row[1])
     command[:] = row[2:5]
@@ -347,7 +351,8 @@ class SealedController:
             raise
         self._tick = 0
         self._J = J
-        self._row = np.zeros(observation_frame_size(J, F), dtype=FRAME_DTYPE)
+        self._layout = ObservationLayout(J, F, self.version, getattr(robot, "sensing", None))
+        self._row = np.zeros(self._layout.size, dtype=FRAME_DTYPE)
         self._answer_bytes = (1 + J) * FRAME_DTYPE.itemsize
         self._tau = np.zeros(J)
 
@@ -356,16 +361,17 @@ class SealedController:
         self._write(header.encode(), when)
         line = self._read_line(self.start_timeout_s, when, "READY line")
         parts = line.split()
-        if len(parts) < 2 or parts[0] != b"READY" or parts[1] != str(PROTOCOL_VERSION).encode():
+        if len(parts) < 2 or parts[0] != b"READY" or answered_version(parts[1]) is None:
             raise SealedControllerError(f"sealed child answered the handshake with {line[:160]!r}; "
-                                        f"expected 'READY {PROTOCOL_VERSION} frames={FRAMES}'")
+                                        f"expected 'READY {PROTOCOL_VERSIONS[-1]} frames={FRAMES}'")
+        self.version = answered_version(parts[1])
         if f"frames={FRAMES}".encode() not in parts[2:]:
             raise SealedControllerError(f"sealed child did not accept binary frames ({FRAMES}): {line[:160]!r}")
         self.program_name = b" ".join(p for p in parts[2:] if b"=" not in p).decode("utf-8", "replace") or None
 
     def step(self, obs, command) -> np.ndarray:
         k, row = self._tick, self._row
-        pack_observation(row, k, obs, command)
+        self._layout.pack(row, k, obs, command)
         when = _At(k, obs.t)   # formatted only if a message needs it
         n = self._answer_bytes
         try:

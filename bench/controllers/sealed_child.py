@@ -1,6 +1,7 @@
 """The child side of sealed mode: ``python -m bench.controllers.sealed_child NAME``.
 
-Reads a QBX 1 handshake on its standard input, rebuilds the nominal robot from
+Reads a QBX handshake on its standard input (and speaks version 2 when it is
+offered, else 1), rebuilds the nominal robot from
 the manifest the handshake names (``manifest_path``; without it, the bundled
 robot of that name), checks it is the robot described (joints, feet, limits,
 pose, height), builds the controller ``NAME`` (a registered name, an entry point
@@ -28,9 +29,8 @@ import traceback
 
 import numpy as np
 
-from bench.controllers.sealed import (
-    BYE_TICK, CHILD_SUMMARY, ENV_PARENT_PID, ENV_SYS_PATH, FRAME_DTYPE, FRAMES, observation_frame_size, unpack_observation,
-)
+from bench.controllers.external import ObservationLayout, sensing_from_header
+from bench.controllers.sealed import BYE_TICK, CHILD_SUMMARY, ENV_PARENT_PID, ENV_SYS_PATH, FRAME_DTYPE, FRAMES
 
 EXIT_CONTROLLER_RAISED = 1
 EXIT_BAD_INPUT = 2
@@ -162,10 +162,11 @@ def _write_all(fout, data) -> None:
         view = view[fout.write(view):]
 
 
-def _serve_binary(fin, fout, controller, J: int, F: int) -> None:
+def _serve_binary(fin, fout, controller, layout: ObservationLayout) -> None:
     from bench.controllers.base import Observation
 
-    row = np.zeros(observation_frame_size(J, F), dtype=FRAME_DTYPE)
+    J, F = layout.J, layout.F
+    row = np.zeros(layout.size, dtype=FRAME_DTYPE)
     view = memoryview(row).cast("B")
     answer = np.zeros(1 + J, dtype=FRAME_DTYPE)
     obs = Observation.zeros(J, F)
@@ -174,17 +175,18 @@ def _serve_binary(fin, fout, controller, J: int, F: int) -> None:
         if row[0] == BYE_TICK:
             _write_all(fout, ("STATS " + json.dumps(_stats(controller)) + "\n").encode())
             return
-        k = unpack_observation(row, obs, command)
+        k = layout.unpack(row, obs, command)
         tau = _call_step(controller, obs, command, k)
         answer[0] = k
         answer[1:] = _torques(tau, J, k, obs.t)
         _write_all(fout, answer)
 
 
-def _serve_text(fin, fout, controller, J: int, F: int) -> None:
+def _serve_text(fin, fout, controller, layout: ObservationLayout) -> None:
     from bench.controllers.base import Observation
 
-    row = np.zeros(observation_frame_size(J, F), dtype=float)
+    J, F = layout.J, layout.F
+    row = np.zeros(layout.size, dtype=float)
     obs = Observation.zeros(J, F)
     command = np.zeros(3)
     while True:
@@ -205,7 +207,7 @@ def _serve_text(fin, fout, controller, J: int, F: int) -> None:
             row[1:] = [float(p) for p in parts[2:]]
         except ValueError:
             raise _Stop(EXIT_BAD_INPUT, f"non-number in {line[:160]!r}") from None
-        k = unpack_observation(row, obs, command)
+        k = layout.unpack(row, obs, command)
         tau = _torques(_call_step(controller, obs, command, k), J, k, obs.t)
         _write_all(fout, ("TAU %d " % k + " ".join(map(repr, tau.tolist())) + "\n").encode())
 
@@ -229,6 +231,11 @@ def serve(spec: str, fin, fout) -> int:
         return 0
     robot = _robot(header)
     try:
+        robot.sensing = sensing_from_header(header)
+    except ValueError as exc:
+        raise _Stop(EXIT_BAD_INPUT, str(exc)) from None
+    version = 2 if "2" in header.get("versions", "").split() else 1
+    try:
         control_dt = float(header["control_dt_s"])
     except (KeyError, ValueError):
         raise _Stop(EXIT_BAD_INPUT, "handshake lacks a valid 'control_dt_s' line") from None
@@ -241,16 +248,16 @@ def serve(spec: str, fin, fout) -> int:
         traceback.print_exc()
         raise _ControllerRaised("while being made or in reset()", exc) from None
     binary = header.get("frames", "").strip() == FRAMES
-    _write_all(fout, f"READY 1 {'frames=' + FRAMES + ' ' if binary else ''}sealed:{spec}\n".encode())
-    J, F = robot.num_joints, robot.num_feet
-    (_serve_binary if binary else _serve_text)(fin, fout, controller, J, F)
+    _write_all(fout, f"READY {version} {'frames=' + FRAMES + ' ' if binary else ''}sealed:{spec}\n".encode())
+    layout = ObservationLayout(robot.num_joints, robot.num_feet, version, robot.sensing)
+    (_serve_binary if binary else _serve_text)(fin, fout, controller, layout)
     return 0
 
 
 def main(argv: list[str] | None = None) -> int:
     argv = sys.argv[1:] if argv is None else argv
     if len(argv) != 1:
-        print("usage: python -m bench.controllers.sealed_child NAME  (speaks QBX 1 on stdin/stdout)",
+        print("usage: python -m bench.controllers.sealed_child NAME  (speaks QBX 1 or 2 on stdin/stdout)",
               file=sys.stderr)
         return EXIT_BAD_INPUT
     _die_with_parent()

@@ -69,5 +69,8 @@ def body() -> str:
 
     lines += ["Every attribute of the robot object, as the bundled quad12 has it (arrays are read-only; "
               "ids index the robot-only `robot.model`):", "", _example(model.NominalRobot(resolve_robot("quad12")))]
+    from bench.sensing_info import SensingInfo
+
+    lines += _section("`SensingInfo` (`robot.sensing`)", SensingInfo)
     lines += _section("`RobotManifest` (`robot.manifest`)", RobotManifest)
     return "\n".join(lines)

@@ -19,7 +19,7 @@ def body() -> str:
     from bench.controllers import external, sealed
 
     return "\n".join([
-        f"Protocol `{external.PROTOCOL}` version {external.PROTOCOL_VERSION}; "
+        f"Protocol `{external.PROTOCOL}` versions {' and '.join(map(str, external.PROTOCOL_VERSIONS))}; "
         f"`--controller \"{external.PREFIX}PROGRAM ARGS\"` runs a program with it.",
         "",
         rst_to_md(docstring(external)),

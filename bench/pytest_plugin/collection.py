@@ -50,7 +50,8 @@ class ScenarioFile(pytest.File):
         settings = settings_of(self.config)
         roots = [p for p in settings.scenario_paths if p.is_dir()]
         try:
-            scenarios = load_file_checked(display_path(self.config, self.path), roots, robot=settings.robot)
+            scenarios = load_file_checked(display_path(self.config, self.path), roots, robot=settings.robot,
+                                          no_privileged=settings.no_privileged)
         except ScenarioErrors as exc:
             raise self.CollectError("\n".join(str(e) for e in exc.errors)) from None
         except ScenarioError as exc:

@@ -38,7 +38,8 @@ class BenchRunner:
         roots = [q for q in settings_of(self.config).scenario_paths if q.is_dir()]
         try:
             return load_file_checked(display_path(self.config, p.resolve()) if p.exists() else str(p), roots,
-                                     robot=settings_of(self.config).robot)
+                                     robot=settings_of(self.config).robot,
+                                     no_privileged=settings_of(self.config).no_privileged)
         except (ScenarioError, ScenarioErrors) as exc:
             pytest.fail(f"bench_run: invalid scenario:\n{exc}", pytrace=False)
 
@@ -54,6 +55,10 @@ class BenchRunner:
                 ids = ", ".join(s.id for s in self.load(scenario))
                 pytest.fail(f"bench_run: {scenario} defines {ids}; pick one with variant=", pytrace=False)
             scenario = found[0]
+        elif settings_of(self.config).no_privileged:   # a Scenario object: forced off as a loaded file is
+            from bench.run.load import without_privileged
+
+            scenario = without_privileged([scenario])[0]
         try:
             return execute(self.config, self._request.node, scenario,
                            controller if controller is not None else self.controller, seed=seed)

@@ -5,7 +5,8 @@ Options (command line, or ``[tool.pytest.ini_options]`` key in brackets):
 (``bench_controller``), ``--bench-out DIR`` (``bench_out``), ``--bench-baseline FILE``
 (``bench_baseline``), ``--bench-history FILE`` / ``--bench-no-history`` (``bench_history``),
 ``--bench-video none|failed|all`` (``bench_video``), ``--bench-video-dir DIR`` (``bench_video_dir``),
-glob (``bench_glob``, default ``*.yaml *.yml``). Paths in the ini file are relative to it; on the
+``--bench-no-privileged`` (``bench_no_privileged = true``: every scenario runs with ``sensing.privileged``
+false), glob (``bench_glob``, default ``*.yaml *.yml``). Paths in the ini file are relative to it; on the
 command line, to the current folder.
 """
 
@@ -43,6 +44,9 @@ def pytest_addoption(parser) -> None:
                 help="render review videos for no scenario, failed ones or all (ini: bench_video)")
     g.addoption("--bench-video-dir", default=None, metavar="DIR",
                 help="where review videos go (default videos/ in the rootdir; ini: bench_video_dir)")
+    g.addoption("--bench-no-privileged", action="store_true", default=False,
+                help="run every scenario with sensing.privileged false (obs.privileged is None), to show a "
+                     "controller never needs the true trunk state (ini: bench_no_privileged = true)")
     parser.addini("bench_scenarios", "scenario files or folders to collect (relative to this file)",
                   type="paths", default=[])
     parser.addini("bench_controller", "controller to run scenario items with", default="")
@@ -53,6 +57,8 @@ def pytest_addoption(parser) -> None:
     parser.addini("bench_history", "history database, or 'none' (relative to this file)", default="")
     parser.addini("bench_video", "review videos: none, failed or all", default="none")
     parser.addini("bench_video_dir", "where review videos go (default videos/ in the rootdir)", default="")
+    parser.addini("bench_no_privileged", "true: every scenario runs with sensing.privileged false", type="bool",
+                  default=False)
     parser.addini("bench_glob", "file name patterns of scenario files", type="args", default=list(DEFAULT_GLOBS))
 
 
@@ -76,6 +82,7 @@ class Settings:
     warnings: list[str] = field(default_factory=list)
     video_off: bool = False
     robot: str | None = None   # --bench-robot: every scenario runs on it
+    no_privileged: bool = False   # --bench-no-privileged: every scenario runs without the true state
 
     @property
     def active(self) -> bool:
@@ -154,6 +161,7 @@ def make_settings(config) -> Settings:
         video=video,
         video_dir=opt("bench_video_dir", "bench_video_dir") or Path(config.rootpath) / "videos",
     )
+    settings.no_privileged = bool(config.getoption("bench_no_privileged") or config.getini("bench_no_privileged"))
     robot = config.getoption("bench_robot")
     if not robot:
         ini_robot = (config.getini("bench_robot") or "").strip()

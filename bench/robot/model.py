@@ -14,6 +14,7 @@ import mujoco
 import numpy as np
 
 from bench.robot.manifest import RobotManifest
+from bench.sensing_info import SensingInfo
 
 
 def load_robot_spec(manifest: RobotManifest) -> mujoco.MjSpec:
@@ -76,6 +77,8 @@ class NominalRobot:
                     self.torque_limits, self.nominal_pose):
             arr.setflags(write=False)
 
+        # What the controller senses beyond the standard observation; the episode sets the scenario's.
+        self.sensing: SensingInfo = SensingInfo()
         self.nominal_qpos = self._nominal_qpos()
         self.trunk_inertia_body, self.com_offset_trunk = self._nominal_inertia()
         for arr in (self.nominal_qpos, self.trunk_inertia_body, self.com_offset_trunk):
@@ -159,4 +162,7 @@ ATTRIBUTE_DOCS = {
     "com_offset_trunk": "whole-robot centre of mass relative to the trunk origin, trunk frame (3,), m",
     "num_joints": "J, the number of joints",
     "num_feet": "F, the number of feet",
+    "sensing": "what the controller senses beyond the standard observation (`SensingInfo`): whether the true "
+               "state is given, the height-scan points, the foot-force mode, joint torques; from the "
+               "scenario's `sensing:` key, set before `reset`",
 }

@@ -60,25 +60,43 @@ def with_robot(scenarios: list, robot: str | None) -> list:
     return [derive(sc, {"robot": value}, "") for sc in scenarios]
 
 
-def load_checked(paths: Iterable[str | Path], roots: Iterable[str | Path] = (), robot: str | None = None) -> list:
+def without_privileged(scenarios: list, off: bool = True) -> list:
+    """``scenarios`` with ``sensing.privileged`` forced false for the whole run (``--no-privileged``).
+
+    The document changes, so the content hash does too: the verdict fingerprint and the result record
+    (``content_hash``) tell such a run from one with the true state, and a stale pass is not reused.
+    Scenarios already without it are returned as they are; ids are unchanged.
+    """
+    if not off:
+        return scenarios
+    from bench.scenario.compose import derive
+
+    return [derive(sc, {"sensing.privileged": False}, "") if sc.sensing.privileged else sc for sc in scenarios]
+
+
+def load_checked(paths: Iterable[str | Path], roots: Iterable[str | Path] = (), robot: str | None = None,
+                 no_privileged: bool = False) -> list:
     """Every scenario under ``paths``, fully checked; raises ``ScenarioErrors`` listing every problem.
 
-    ``robot`` replaces every scenario's robot (``--robot``) before the robot checks.
+    ``robot`` replaces every scenario's robot (``--robot``) before the robot checks; ``no_privileged``
+    turns the true state off in every scenario (``--no-privileged``).
     """
     from bench.scenario.loader import load_scenarios
 
     scenarios = with_robot(load_scenarios(list(paths), roots=[Path(r) for r in roots]), robot)
+    scenarios = without_privileged(scenarios, no_privileged)
     errors = robot_problems(scenarios)
     if errors:
         raise ScenarioErrors(errors)
     return scenarios
 
 
-def load_file_checked(path: str | Path, roots: Iterable[str | Path] = (), robot: str | None = None) -> list:
+def load_file_checked(path: str | Path, roots: Iterable[str | Path] = (), robot: str | None = None,
+                      no_privileged: bool = False) -> list:
     """Every scenario one file defines, fully checked; raises ``ScenarioErrors``/``ScenarioError``."""
     from bench.scenario.loader import load_file
 
-    scenarios = with_robot(load_file(path, list(roots)), robot)
+    scenarios = without_privileged(with_robot(load_file(path, list(roots)), robot), no_privileged)
     errors = robot_problems(scenarios)
     if errors:
         raise ScenarioErrors(errors)

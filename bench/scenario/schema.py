@@ -431,6 +431,104 @@ def _commands_sorted(items: list[tuple[int, Any]]) -> Iterator[Problem]:
             yield (i, "at"), f"commands must be in increasing time: {b.at:g} s comes after {a.at:g} s", None
 
 
+# --------------------------------------------------------------------------- sensing
+
+#: Most points a height scan may have (the grid is cast every scan; see `bench.sim.sensing`).
+MAX_SCAN_POINTS = 20_000
+
+
+def scan_axis_points(extent_m: float, resolution_m: float) -> int:
+    """Points along one side of a height-scan grid: every `resolution_m` across `extent_m`, both ends
+    included (a spacing that does not divide the extent leaves the rest out, centred)."""
+    return int(math.floor(extent_m / resolution_m + 1e-9)) + 1
+
+
+def _whole_ticks(value_s: float, control_rate: float) -> float:
+    """How far `value_s` is from a whole number of control ticks, in ticks."""
+    ticks = value_s * control_rate
+    return abs(ticks - round(ticks))
+
+
+@_frozen
+class HeightScan:
+    """A grid of terrain heights around the trunk, yaw-aligned, from vertical rays against the terrain only."""
+
+    size: Range2 = spec(doc="grid extent [length along the heading, width to the left]", unit="m",
+                        ge=0.0, le=20.0)
+    resolution: float = spec(doc="spacing between neighbouring points", unit="m", ge=0.005, le=5.0)
+    offset: Range2 = spec((0.0, 0.0), doc="grid centre from the trunk origin, yaw-aligned [forward, left]",
+                          unit="m", ge=-10.0, le=10.0)
+    noise: float = spec(0.0, doc="standard deviation of Gaussian noise on each height", unit="m", ge=0.0, le=1.0)
+    dropout: float = spec(0.0, doc="probability that a point is missing in a scan (it then reads nan)",
+                          ge=0.0, le=1.0)
+    rate: float | None = spec(None, doc="scans per second, held between scans; control_rate / rate must be a "
+                              "whole number", unit="Hz", gt=0.0, le=10_000.0, default_doc="every control tick")
+    latency: float = spec(0.0, doc="delay from a scan to the controller seeing it; a whole number of control "
+                          "ticks", unit="s", ge=0.0, le=10.0)
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        """(points along the heading, points to the left)."""
+        return (scan_axis_points(self.size[0], self.resolution), scan_axis_points(self.size[1], self.resolution))
+
+    def _problems(self, ctx: Any) -> Iterator[Problem]:
+        nx, ny = self.shape
+        if nx * ny > MAX_SCAN_POINTS:
+            yield ("resolution",), f"height scan would have {nx} x {ny} = {nx * ny} points, more than " \
+                f"{MAX_SCAN_POINTS}", "use a coarser resolution or a smaller size"
+        rate = ctx.top.get("control_rate")
+        if not isinstance(rate, float):
+            return
+        if self.rate is not None:
+            if self.rate > rate:
+                yield ("rate",), f"rate {self.rate:g} Hz is faster than the control rate {rate:g} Hz", \
+                    f"use at most {rate:g} Hz (or leave rate out: every control tick)"
+            elif _whole_ticks(1.0 / self.rate, rate) > 1e-6:
+                good = [rate / n for n in range(1, 1001) if abs(rate / n - round(rate / n, 6)) < 1e-9]
+                near = sorted(good, key=lambda hz: abs(hz - self.rate))[:2]
+                yield ("rate",), f"rate {self.rate:g} Hz is not the control rate {rate:g} Hz divided by a whole " \
+                    "number", "e.g. rate " + " or ".join(f"{hz:g} Hz" for hz in sorted(near, reverse=True))
+        if _whole_ticks(self.latency, rate) > 1e-6:
+            tick = 1.0 / rate
+            lo = math.floor(self.latency * rate) * tick
+            yield ("latency",), f"latency {self.latency:g} s is not a whole number of control ticks " \
+                f"({tick:g} s at {rate:g} Hz)", f"e.g. latency {lo:g} s or {lo + tick:g} s"
+
+
+@_frozen
+class FootForce:
+    """Measured ground reaction force per foot."""
+
+    mode: Literal["normal", "3d"] = spec("normal", doc="normal: the force along the contact normal, one "
+                                         "number per foot; 3d: the force vector in world axes")
+    noise: float = spec(0.0, doc="standard deviation of Gaussian noise on each component", unit="N",
+                        ge=0.0, le=10_000.0)
+
+
+@_frozen
+class JointTorque:
+    """Measured joint torque: the torque the actuators applied, after the bench's motor faults."""
+
+    noise: float = spec(0.0, doc="standard deviation of Gaussian noise on each joint", unit="N m",
+                        ge=0.0, le=10_000.0)
+
+
+@_frozen
+class Sensing:
+    """What the controller senses beyond the IMU, the encoders and the contact flags."""
+
+    privileged: bool = spec(True, doc="give the controller the true trunk position and velocity "
+                            "(obs.privileged); false: obs.privileged is None")
+    height_scan: HeightScan | None = spec(None, doc="terrain height grid around the trunk (obs.height_scan)")
+    foot_force: FootForce | None = spec(None, doc="measured foot forces (obs.foot_force)")
+    joint_torque: JointTorque | None = spec(None, doc="measured joint torques (obs.joint_torque)")
+
+    @property
+    def any_sensor(self) -> bool:
+        """True when a sensor beyond today's set is on (the episode then runs the sensing step)."""
+        return self.height_scan is not None or self.foot_force is not None or self.joint_torque is not None
+
+
 # --------------------------------------------------------------------------- criteria
 
 
@@ -631,6 +729,7 @@ class Scenario:
     disturbances: tuple[AnyDisturbance, ...] = _list(doc="external forces on the trunk")
     faults: tuple[AnyFault, ...] = _list(doc="actuator and sensor faults")
     commands: tuple[Command, ...] = _list(_commands_sorted, doc="velocity commands (zero until the first)")
+    sensing: Sensing = spec(Sensing(), doc="extra sensors and whether the controller sees the true state")
     criteria: dict = spec(None, default_factory=dict, doc="criterion name -> limit (or true)",
                           parse=_parse_criteria, json={"$ref": "#/$defs/criteria"})
     trials: int = spec(1, doc="number of trials (each a derived scenario with its own seed)", ge=1, le=10_000)

@@ -155,3 +155,15 @@ class ContactTable:
             out[:] = acc
         else:
             out.reshape(-1)[:] = acc
+
+    def normal_forces(self, m: mujoco.MjModel, d: mujoco.MjData, out: np.ndarray) -> None:
+        """Each foot's summed normal contact force, N, into ``out`` (F,), over the contacts ``classify`` found.
+
+        The normal component of ``mj_contactForce`` (contact frame, first entry) pushes the two geoms apart,
+        so it is the same for the foot whichever of the two geoms it is.
+        """
+        out[:] = 0.0
+        cf = self._cf
+        for i, _sign, foot in self._found:
+            mujoco.mj_contactForce(m, d, i, cf)
+            out[foot] += cf[0]

@@ -60,6 +60,7 @@ from bench.sim.contacts import CONTACT_DIST_M, ContactTable
 from bench.sim.interrupts import UserInterrupts, raised_reason
 from bench.sim.events import Event, compile_forces, compile_masses, fault_events
 from bench.sim.faults import compile_faults
+from bench.sim.sensing import compile_sensing, sensing_info
 from bench.sim.trace import Trace
 from bench.world.payloads import PAYLOAD_CONTYPE, PAYLOAD_RGBA
 
@@ -458,6 +459,16 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     # swapping an array) cannot change what is recorded, and is overwritten at the next tick.
     foot_contact = np.zeros(F, dtype=bool)
     ctrl_obs, ctrl_command = Observation.zeros(J, F), np.zeros(3)
+    # Extra sensors (scenario key sensing:); None without them, and then nothing of them runs per tick.
+    sensing = getattr(scenario, "sensing", None)
+    privileged = sensing is None or bool(sensing.privileged)
+    if not privileged:
+        ctrl_obs.privileged = None
+    sensors = compile_sensing(scenario, world, m, d, contacts, seed, float(scenario.control_rate))
+    try:
+        robot.sensing = sensing_info(sensing)
+    except AttributeError:   # a robot object that takes no attributes: the controller goes without the description
+        pass
     status, reason = "completed", None
     ctrl_ms = A["controller_ms"]
 
@@ -543,11 +554,14 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 ctrl_obs.joint_pos[:] = qpos[jq_s]
                 ctrl_obs.joint_vel[:] = qvel[jv_s]
                 ctrl_obs.foot_contact[:] = foot_contact
-                ctrl_obs.privileged.base_pos[:] = q_base
-                ctrl_obs.privileged.base_linvel[:] = v_base
+                if privileged:
+                    ctrl_obs.privileged.base_pos[:] = q_base
+                    ctrl_obs.privileged.base_linvel[:] = v_base
             except Exception:  # noqa: BLE001 - the controller replaced an array or the privileged part
                 ctrl_obs = _fresh_observation(J, F, t, s_quat, s_gyro, s_accel, qpos[jq_s], qvel[jv_s],
-                                              foot_contact, q_base, v_base)
+                                              foot_contact, q_base if privileged else None, v_base)
+            if sensors is not None:
+                sensors.observe(k, ctrl_obs)
             # The true state of this instant (before any sensor fault).
             R_qpos[k] = qpos
             R_qvel[k] = qvel
@@ -639,6 +653,8 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                     apply_forces(step)
                 mj_step(m, d)
                 step += 1
+            if sensors is not None:
+                sensors.after_physics()
 
             # End conditions.
             if warn_number.tobytes() != no_warnings and warn_number[fatal_idx].any():
@@ -725,6 +741,9 @@ def _fresh_observation(J: int, F: int, t: float, quat, gyro, accel, joint_pos, j
     o.joint_pos[:] = joint_pos
     o.joint_vel[:] = joint_vel
     o.foot_contact[:] = foot_contact
+    if base_pos is None:   # privileged: false
+        o.privileged = None
+        return o
     o.privileged.base_pos[:] = base_pos
     o.privileged.base_linvel[:] = base_linvel
     return o
