@@ -39,6 +39,8 @@ class Observation:
     joint_vel: np.ndarray = field(default_factory=lambda: np.zeros(0))  # (J,) rad/s
     foot_contact: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=bool))  # (F,)
     privileged: Privileged = field(default_factory=Privileged)
+    # The scenario's gait hint (stand, trot, pace, bound, walk) or None: a hint, which a controller may ignore.
+    gait_hint: str | None = None
 
     @classmethod
     def zeros(cls, n_joints: int, n_feet: int) -> "Observation":

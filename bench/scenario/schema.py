@@ -40,6 +40,7 @@ from bench.fieldspec import (  # noqa: F401 - re-exported: the schema's declarat
     spec,
 )
 from bench.fieldspec import frozen as _frozen
+from bench.gaits import GAIT_HINTS
 
 Vec3 = tuple[float, float, float]
 Range2 = tuple[float, float]
@@ -423,6 +424,9 @@ class Command:
     vx: float = spec(0.0, doc="forward velocity", unit="m/s", ge=-10.0, le=10.0)
     vy: float = spec(0.0, doc="sideways velocity", unit="m/s", ge=-10.0, le=10.0)
     yaw_rate: float = spec(0.0, doc="turn rate", unit="rad/s", ge=-20.0, le=20.0)
+    gait: Literal[GAIT_HINTS] | None = spec(
+        None, doc="gait hint handed to the controller (obs.gait_hint), held until a later command sets "
+                  "another; a controller may ignore it", default_doc="the previous command's hint; none at first")
 
 
 def _commands_sorted(items: list[tuple[int, Any]]) -> Iterator[Problem]:
