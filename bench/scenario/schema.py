@@ -443,7 +443,12 @@ DEFAULT_SCORE_FROM_S = 0.5
 
 
 def _parse_criteria(v: Any, raw: Any, path: tuple) -> Any:
-    """criterion name -> limit, checked against the criteria registry (`bench.scenario.criteria`)."""
+    """criterion name -> limit, checked against the criteria registry (`bench.scenario.criteria`).
+
+    A criterion whose limit is not a number or true/false (the gait windows of ``gait``) converts and checks it
+    itself: its ``parse(validator, raw, path)`` returns the value or ``validator.INVALID`` after reporting, and
+    its ``json_schema()`` gives the JSON Schema of that value.
+    """
     if raw is None:
         return {}
     if not isinstance(raw, dict):
@@ -464,6 +469,13 @@ def _parse_criteria(v: Any, raw: Any, path: tuple) -> Any:
             ok = False
             continue
         if value is None:  # lets a file that extends another drop an inherited criterion
+            continue
+        if callable(getattr(info, "parse", None)):   # a criterion whose limit is not one number (gait windows)
+            got = info.parse(v, value, p)
+            if got is v.INVALID:
+                ok = False
+            else:
+                out[name] = got
             continue
         if getattr(info, "boolean", False):
             if not isinstance(value, bool):
@@ -486,7 +498,9 @@ def _criteria_json() -> dict:
     for name, info in all_criteria().items():
         unit = unit_of(info)
         desc = str(getattr(info, "description", "")) + (f" [{unit}]" if unit else "")
-        if getattr(info, "boolean", False):
+        if callable(getattr(info, "json_schema", None)):
+            props[name] = info.json_schema()
+        elif getattr(info, "boolean", False):
             props[name] = {"description": desc, "type": ["boolean", "null"]}
         else:
             s: dict[str, Any] = {"description": desc, "type": ["number", "null"]}
