@@ -276,12 +276,14 @@ class GaitCriterion:
         windows = [GaitWindow(w) if isinstance(w, str) else w for w in windows]
         t = np.asarray(trace["t"]) if len(trace) else np.zeros(0)
         end = float(trace.meta.get("duration", t[-1] if len(t) else 0.0))
+        dt = float(t[1] - t[0]) if len(t) > 1 else 0.0
+        ended_early = not len(t) or t[-1] + dt < end - 1e-9     # fell, or stopped by a fault
         worst = None   # (passed, value - threshold, result)
         for w in windows:
             t0 = score_from if w.from_s is None else w.from_s
             t1 = w.to_s
             where = f"{w.expect} from {t0:.2f} s" + (f" to {t1:.2f} s" if t1 is not None else "")
-            if not len(t) or t[-1] < t0 or (t1 is not None and t[-1] < t1 and t[-1] < end - 1e-9):
+            if not len(t) or t[-1] < t0 or (ended_early and (t1 is None or t[-1] < t1)):
                 last = float(t[-1]) if len(t) else 0.0
                 res = GaitResult(self.name, None, None, False, t0, self.unit,
                                  detail=f"expected {where}, but the episode ended at {last:.2f} s")
