@@ -106,3 +106,20 @@ def test_a_wrong_gait_name_is_refused_with_a_suggestion(tmp_path):
 def test_json_schema_lists_the_gait_names():
     cmd = scenario_json_schema()["$defs"]["Command"]["properties"]["gait"]
     assert {"enum": list(GAIT_HINTS)} in cmd["anyOf"] and {"type": "null"} in cmd["anyOf"]
+
+
+def test_json_schema_accepts_the_gait_scenarios_and_refuses_wrong_names():
+    import glob
+
+    import jsonschema
+    import yaml
+
+    v = jsonschema.Draft202012Validator(scenario_json_schema())
+    root = __import__("pathlib").Path(__file__).resolve().parents[1]
+    files = glob.glob(str(root / "scenarios/gaits/*.yaml"))
+    assert len(files) >= 5
+    for f in files:
+        assert not list(v.iter_errors(yaml.safe_load(open(f)))), f
+    for bad in ({"commands": [{"at": 0, "gait": "bownd"}]}, {"criteria": {"gait": {"expect": "trott"}}},
+                {"criteria": {"gait": [{"expect": "trot", "form": 1}]}}, {"criteria": {"duty_factor_min": 2}}):
+        assert list(v.iter_errors({"name": "x", "duration": 1, **bad})), bad

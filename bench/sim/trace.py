@@ -23,6 +23,9 @@ CONTRACT_KEYS = (
 )
 #: Extra keys this bench adds (allowed by the contract).
 EXTRA_KEYS = ("qpos", "torque_limit", "controller_ms", "foot_contact", "payload_mass")
+#: Extra keys present only when the scenario uses what they record: ``gait_hint`` (int8 per row: 0 none,
+#: 1 stand, 2 trot, 3 pace, 4 bound, 5 walk; the names in ``meta["gait_hint_names"]``, comma-separated).
+OPTIONAL_KEYS = ("gait_hint",)
 
 
 @dataclass
