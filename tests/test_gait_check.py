@@ -193,6 +193,13 @@ def test_gait_criterion_on_synthetic_contacts_and_the_worst_window_is_reported()
     assert not get_criterion("gait").evaluate({}, {}, full, (GaitWindow("trot", 2.0),), 0.5).passed
 
 
+def test_a_trace_that_is_not_four_legged_fails_the_gait_criterion_with_a_reason():
+    six = synthetic([0.0, 0.5, 0.5, 0.0], 0.6)
+    six = {**six, "foot_contact": np.concatenate([six["foot_contact"]] * 2, axis=1)[:, :6]}
+    c = _judge(six, "gait", (GaitWindow("trot"),))
+    assert not c.passed and c.value is None and "for four legs; the trace has 6 feet" in c.sentence()
+
+
 def test_duty_factor_criteria():
     walk = synthetic(*WALK)
     assert _judge(walk, "duty_factor_min", 0.8).passed and _judge(walk, "duty_factor_max", 0.9).passed

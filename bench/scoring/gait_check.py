@@ -289,7 +289,11 @@ class GaitCriterion:
                                  detail=f"expected {where}, but the episode ended at {last:.2f} s")
                 key = (False, -math.inf)
             else:
-                reading = read_gait(trace, t_from=t0, t_to=t1)
+                try:
+                    reading = read_gait(trace, t_from=t0, t_to=t1)
+                except ValueError as exc:   # not four legs, or not one foot per quadrant: cannot be judged
+                    return GaitResult(self.name, None, None, False, t0, self.unit,
+                                      detail=f"expected {where}, but {exc}")
                 value, threshold = reading.score(w.expect)
                 passed = value >= threshold
                 detail = f"expected {where}, " + _fmt_reading(reading)
