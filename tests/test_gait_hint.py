@@ -123,3 +123,23 @@ def test_json_schema_accepts_the_gait_scenarios_and_refuses_wrong_names():
     for bad in ({"commands": [{"at": 0, "gait": "bownd"}]}, {"criteria": {"gait": {"expect": "trott"}}},
                 {"criteria": {"gait": [{"expect": "trot", "form": 1}]}}, {"criteria": {"duty_factor_min": 2}}):
         assert list(v.iter_errors({"name": "x", "duration": 1, **bad})), bad
+
+
+def test_the_stacks_follow_stand_and_ignore_a_hint_they_do_not_know(tmp_path):
+    from bench.controllers.stacks import ForceQPController
+    from bench.scoring.gait_check import read_gait
+
+    class Gallop(ForceQPController):
+        def step(self, obs, command):
+            obs.gait_hint = "gallop"       # a gait the stack does not know: it must trot as without a hint
+            return super().step(obs, command)
+
+    _, [sc] = _load(tmp_path, """
+        - {at: 0.0, vx: 0.3, gait: stand}
+        """)
+    sc = __import__("dataclasses").replace(sc, duration=2.0)
+    man = manifest_for(sc)
+    ep = run_episode(build_world(sc, man), sc, ForceQPController(), NominalRobot(man), seed=sc.seed)
+    assert ep.status == "completed" and read_gait(ep.trace).gait == "stand"
+    ep = run_episode(build_world(sc, man), sc, Gallop(), NominalRobot(man), seed=sc.seed)
+    assert ep.status == "completed" and read_gait(ep.trace, t_from=1.0).gait == "trot"

@@ -20,8 +20,9 @@ Per control tick:
    standing once the command has been zero for a while. (Documented choice:
    it trots when commanded to move, stands otherwise.) A scenario's gait hint
    (``obs.gait_hint``) picks the gait instead: ``pace``, ``bound``, ``walk`` or
-   ``trot`` when moving (parameters per gait in ``gait.GAIT_TUNING``), ``stand``
-   keeps every foot down; without a hint it trots as above.
+   ``trot`` when moving (parameters per gait in ``gait.GAIT_TUNING``); ``stand``
+   stands still whatever the velocity command (it is shaped as a zero command);
+   an unknown hint is ignored; without a hint it trots as above.
 4. ``DesiredWrench``: PD + nominal gravity compensation -> body wrench.
    ``force-qp-l1`` first runs ``L1Adaptive`` on the trunk error state and writes
    its adaptive acceleration into the wrench's feed-forward slot.
@@ -186,9 +187,19 @@ class ForceQPController:
         if not self._started:
             self._start(obs)
 
+        # a gait hint picks the gait (see the module docstring); "stand" stands still; an unknown hint is ignored
+        hint = getattr(obs, "gait_hint", None)
+        if hint != self._hint:
+            self._hint = hint
+            self._hint_stand = hint == "stand"
+            if hint in self.gait.gaits:
+                self.gait.request(hint)
+
         # command shaping
         c = self.cmd
         cx, cy_, cz = float(command[0]), float(command[1]), float(command[2])
+        if self._hint_stand:
+            cx = cy_ = cz = 0.0
         ls, ys = self.max_lin_step, self.max_yaw_step
         c[0] += min(ls, max(-ls, cx - c[0]))
         c[1] += min(ls, max(-ls, cy_ - c[1]))
@@ -222,15 +233,9 @@ class ForceQPController:
         self.yaw_des = yd
         so3.rot_z(yd, out=self.rot_des)
 
-        # gait: a hint picks it (see the module docstring); an unknown one is ignored
+        # gait
         gait = self.gait
-        hint = getattr(obs, "gait_hint", None)
-        if hint != self._hint:
-            self._hint = hint
-            self._hint_stand = hint == "stand"
-            if hint in gait.gaits:
-                gait.request(hint)
-        gait.update(dt, moving and not self._hint_stand)
+        gait.update(dt, moving)
         self.swing.swing_height_m = self._swing_height.get(gait.gait, self.swing.swing_height_m)
         contact = gait.contact_list
 
