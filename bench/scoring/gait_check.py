@@ -206,6 +206,8 @@ class GaitCriterion:
     unit: str = ""
     boolean = False
     direction = "min"
+    reads = "foot_contact"     # the trace column it judges (for the reference page)
+    limit_doc = "a gait name, `{expect, from, to}` or a list of those"
 
     # ---- validation (called by the scenario schema for a criterion that is not a plain number)
     def parse(self, v, raw, path: tuple):
@@ -316,6 +318,7 @@ class DutyFactorCriterion:
     ge: float = 0.0
     le: float = 1.0
     boolean = False
+    reads = "foot_contact"
 
     @property
     def direction(self) -> str:
