@@ -45,6 +45,8 @@ class Observation:
     height_scan: np.ndarray | None = None   # (nx, ny) world z of the terrain, m; NaN: no reading
     foot_force: np.ndarray | None = None    # (F,) normal force N, or (F, 3) world-frame force N
     joint_torque: np.ndarray | None = None  # (J,) measured joint torque, N m
+    # The scenario's gait hint (stand, trot, pace, bound, walk) or None: a hint, which a controller may ignore.
+    gait_hint: str | None = None
 
     @classmethod
     def zeros(cls, n_joints: int, n_feet: int) -> "Observation":

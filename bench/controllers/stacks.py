@@ -18,7 +18,11 @@ Per control tick:
 3. ``GaitScheduler``: stands while the shaped command is zero; trots (from a
    double-support point, with load ramps) as soon as it is not, and returns to
    standing once the command has been zero for a while. (Documented choice:
-   it trots when commanded to move, stands otherwise.)
+   it trots when commanded to move, stands otherwise.) A scenario's gait hint
+   (``obs.gait_hint``) picks the gait instead: ``pace``, ``bound``, ``walk`` or
+   ``trot`` when moving (parameters per gait in ``gait.GAIT_TUNING``); ``stand``
+   stands still whatever the velocity command (it is shaped as a zero command);
+   an unknown hint is ignored; without a hint it trots as above.
 4. ``DesiredWrench``: PD + nominal gravity compensation -> body wrench.
    ``force-qp-l1`` first runs ``L1Adaptive`` on the trunk error state and writes
    its adaptive acceleration into the wrench's feed-forward slot.
@@ -41,7 +45,7 @@ import numpy as np
 
 from bench.controllers import so3
 from bench.controllers.force_qp import ForceQP
-from bench.controllers.gait import GaitScheduler
+from bench.controllers.gait import GAIT_TUNING, GaitScheduler
 from bench.controllers.ground import GroundPlane
 from bench.controllers.kinematics import LegKinematics
 from bench.controllers.l1 import L1Adaptive
@@ -56,7 +60,9 @@ class ForceQPController:
 
     Parameters (all keyword, all have defaults)
     -------------------------------------------
-    gait_period_s, duty, load_ramp: gait scheduler (see ``gait.py``).
+    gait_period_s, duty, load_ramp: gait scheduler (see ``gait.py``), for the trot.
+    gait_tuning: gait name -> ``{period_s, duty, load_ramp, swing_height_m}`` overriding
+        ``gait.GAIT_TUNING`` for the hinted gaits (pace, bound, walk).
     swing_height_m, k_vel, max_reach_m, swing_kp, swing_kd: swing planner.
     leg_bias_ff: add the nominal model's gravity/Coriolis joint torques (feed-forward).
     mu, fz_min_n, fz_max_n, alpha, beta, wrench_weights, solver, qp_direct: force QP
@@ -100,6 +106,7 @@ class ForceQPController:
         max_yaw_err_rad: float = 0.3,
         move_threshold: float = 0.02,
         ground_tau_s: float = 0.05,
+        gait_tuning: dict | None = None,
     ) -> None:
         self.params = dict(locals())
         self.params.pop("self")
@@ -118,7 +125,12 @@ class ForceQPController:
         self.kin = LegKinematics(robot, with_bias=p["leg_bias_ff"])
         nf, nj = self.kin.n_feet, self.kin.n_joints
         self.n_feet, self.n_joints = nf, nj
-        self.gait = GaitScheduler(p["gait_period_s"], p["duty"], load_ramp=p["load_ramp"])
+        tuning = {g: {**v, **(p["gait_tuning"] or {}).get(g, {})} for g, v in GAIT_TUNING.items()}
+        self.gait = GaitScheduler(p["gait_period_s"], p["duty"], load_ramp=p["load_ramp"], tuning=tuning)
+        self._swing_height = {g: float(v.get("swing_height_m", p["swing_height_m"])) for g, v in tuning.items()}
+        self._swing_height["trot"] = float(p["swing_height_m"])
+        self._hint = None
+        self._hint_stand = False
         self.swing = SwingPlanner(nf, p["swing_height_m"], p["k_vel"], p["max_reach_m"],
                                   kp=p["swing_kp"], kd=p["swing_kd"])
         self.qp = ForceQP(nf, mu=p["mu"], fz_min_n=p["fz_min_n"], fz_max_n=p["fz_max_n"],
@@ -175,9 +187,19 @@ class ForceQPController:
         if not self._started:
             self._start(obs)
 
+        # a gait hint picks the gait (see the module docstring); "stand" stands still; an unknown hint is ignored
+        hint = getattr(obs, "gait_hint", None)
+        if hint != self._hint:
+            self._hint = hint
+            self._hint_stand = hint == "stand"
+            if hint in self.gait.gaits:
+                self.gait.request(hint)
+
         # command shaping
         c = self.cmd
         cx, cy_, cz = float(command[0]), float(command[1]), float(command[2])
+        if self._hint_stand:
+            cx = cy_ = cz = 0.0
         ls, ys = self.max_lin_step, self.max_yaw_step
         c[0] += min(ls, max(-ls, cx - c[0]))
         c[1] += min(ls, max(-ls, cy_ - c[1]))
@@ -214,6 +236,7 @@ class ForceQPController:
         # gait
         gait = self.gait
         gait.update(dt, moving)
+        self.swing.swing_height_m = self._swing_height.get(gait.gait, self.swing.swing_height_m)
         contact = gait.contact_list
 
         # ground: plane through the last contact point of each foot

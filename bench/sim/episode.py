@@ -56,6 +56,7 @@ import numpy as np
 
 from bench.controllers.base import Observation
 from bench.faults import FaultContext
+from bench.gaits import GAIT_HINT_NAMES, gait_code
 from bench.sim.contacts import CONTACT_DIST_M, ContactTable
 from bench.sim.interrupts import UserInterrupts, raised_reason
 from bench.sim.events import Event, compile_forces, compile_masses, fault_events
@@ -399,6 +400,15 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     cmd_vals = np.array([[c.vx, c.vy, c.yaw_rate] for c in scenario.commands] or [[0.0, 0.0, 0.0]])
     cmd_index = np.clip(np.searchsorted(cmd_times, np.arange(n_ticks) * ctrl_dt + 1e-9, side="right") - 1, 0, None)
     cmd_rows = cmd_vals[cmd_index]
+    # Gait hints: each held from the command that sets one until a later command sets another (code 0: none).
+    # Recorded (column gait_hint) only when the scenario gives one, so other traces keep their digests.
+    hint_codes, held = [], 0
+    for c in scenario.commands:
+        held = gait_code(c.gait) if getattr(c, "gait", None) is not None else held
+        hint_codes.append(held)
+    has_hints = any(hint_codes)
+    hint_rows = np.array(hint_codes or [0], dtype=np.int8)[cmd_index]
+    hint_of = [None if code == 0 else GAIT_HINT_NAMES[code] for code in range(len(GAIT_HINT_NAMES))]
     # Payload mass changes, tick -> [(payload index, new mass)]: the schedules evaluated once, up front.
     mass_changes: dict[int, list[tuple[int, float]]] = {}
     for ms in mass_scheds:
@@ -557,9 +567,12 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 if privileged:
                     ctrl_obs.privileged.base_pos[:] = q_base
                     ctrl_obs.privileged.base_linvel[:] = v_base
+                if has_hints:
+                    ctrl_obs.gait_hint = hint_of[hint_rows[k]]
             except Exception:  # noqa: BLE001 - the controller replaced an array or the privileged part
                 ctrl_obs = _fresh_observation(J, F, t, s_quat, s_gyro, s_accel, qpos[jq_s], qvel[jv_s],
-                                              foot_contact, q_base if privileged else None, v_base)
+                                              foot_contact, q_base if privileged else None, v_base,
+                                              hint_of[hint_rows[k]])
             if sensors is not None:
                 sensors.observe(k, ctrl_obs)
             # The true state of this instant (before any sensor fault).
@@ -695,6 +708,9 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
         A = trace.arrays
         _derive_rows(A, n, ctrl_dt, world, m, R_qvel[:n], R_xipos[:n], cmd_rows[:n])
         A["terrain_height"][:] = world.terrain.height_at(A["base_pos"][:, 0], A["base_pos"][:, 1])
+    if has_hints:
+        trace.arrays["gait_hint"] = hint_rows[:n].copy()
+        trace.meta["gait_hint_names"] = ",".join(GAIT_HINT_NAMES)
     stats = {}
     watchdog.call_limit_s = watchdog.tick_limit_s
     c0 = watchdog.call_start = time.perf_counter()
@@ -731,7 +747,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
 
 
 def _fresh_observation(J: int, F: int, t: float, quat, gyro, accel, joint_pos, joint_vel, foot_contact, base_pos,
-                       base_linvel) -> Observation:
+                       base_linvel, gait_hint: str | None = None) -> Observation:
     """A new controller observation (the controller broke its own); filled from this tick's values."""
     o = Observation.zeros(J, F)
     o.t = t
@@ -741,6 +757,7 @@ def _fresh_observation(J: int, F: int, t: float, quat, gyro, accel, joint_pos, j
     o.joint_pos[:] = joint_pos
     o.joint_vel[:] = joint_vel
     o.foot_contact[:] = foot_contact
+    o.gait_hint = gait_hint
     if base_pos is None:   # privileged: false
         o.privileged = None
         return o
