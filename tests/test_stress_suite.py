@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 from pathlib import Path
 
 import pytest
@@ -90,7 +92,16 @@ def test_the_orchard_sprayer_demo_has_what_it_promises(suite):
     assert {"slope", "stairs"} <= kinds
     liquid = next(p for p in demo.payloads if p.type == "shifting")
     assert liquid.drain is not None and liquid.drain.final_mass < liquid.mass / 2
-    assert {d.kind for d in demo.disturbances} == {"push_train", "steady_force"}
+    assert {d.kind for d in demo.disturbances} == {"push", "steady_force"}
+    # gusts come from the crosswind's side and stay realistic: drag grows with the square of the wind
+    # speed, so a gust of at most 1.5 times the mean speed adds at most 1.5^2 - 1 = 1.25 times the
+    # steady force (gust factor: common practice, no source)
+    wind = next(d for d in demo.disturbances if d.kind == "steady_force")
+    gusts = [d for d in demo.disturbances if d.kind == "push"]
+    assert len(gusts) >= 3
+    for g in gusts:
+        assert g.force[1] * wind.force[1] > 0
+        assert math.hypot(*g.force) <= 1.25 * math.hypot(*wind.force)
 
 
 def test_list_shows_the_bundled_suite(suite, capsys):

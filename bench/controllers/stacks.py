@@ -4,8 +4,12 @@ Both are assembled from the parts in this package and differ in exactly one
 thing: ``force-qp-l1`` adds an L1 adaptive augmentation of the trunk dynamics.
 Per control tick:
 
-1. ``LegKinematics.update``: pose the nominal robot from the observation (feet,
-   Jacobians, COM).
+0. Trunk state: by default the reference estimator (``LegImuEstimator``: IMU +
+   leg kinematics under the contact flags) gives the trunk position and
+   velocity; the stacks never read ``obs.privileged``. With ``privileged=True``
+   they read the simulator's true trunk state there instead.
+1. ``LegKinematics.update``: pose the nominal robot from the observation and
+   that trunk state (feet, Jacobians, COM).
 2. Command shaping: the body-frame command ``[vx, vy, yaw_rate]`` is rate
    limited (``max_lin_acc``, ``max_yaw_acc``), turned to world by the current
    heading and integrated into a desired heading and horizontal position (the
@@ -44,6 +48,7 @@ import time
 import numpy as np
 
 from bench.controllers import so3
+from bench.controllers.estimator import LegImuEstimator
 from bench.controllers.force_qp import ForceQP
 from bench.controllers.gait import GAIT_TUNING, GaitScheduler
 from bench.controllers.ground import GroundPlane
@@ -73,6 +78,11 @@ class ForceQPController:
     max_pos_err_m, max_yaw_err_rad: clip on the horizontal position / heading error.
     move_threshold: command size (m/s or rad/s) above which it trots.
     ground_tau_s: time constant of the ground-height estimate (``ground.py``).
+    privileged: read the true trunk position and velocity from ``obs.privileged``
+        instead of estimating them (a scenario or run without privileged state then
+        stops the episode with an error saying so).
+    estimator: keyword overrides of the estimator's noise figures
+        (``EstimatorParams`` in ``estimator.py``); unused when ``privileged``.
     """
 
     name = "force-qp"
@@ -107,6 +117,8 @@ class ForceQPController:
         move_threshold: float = 0.02,
         ground_tau_s: float = 0.05,
         gait_tuning: dict | None = None,
+        privileged: bool = False,
+        estimator: dict | None = None,
     ) -> None:
         self.params = dict(locals())
         self.params.pop("self")
@@ -169,6 +181,12 @@ class ForceQPController:
         self._started = False
         self.ticks = 0
         self.step_time_s = 0.0
+        self._privileged = bool(p["privileged"])
+        self.est = None
+        if not self._privileged:
+            self.est = LegImuEstimator(robot, self.dt, **(p["estimator"] or {}))
+            self.est.reset()
+            self._est_contact = np.ones(nf, dtype=bool)
         self._reset_extra()
 
     def _reset_extra(self) -> None:
@@ -178,14 +196,14 @@ class ForceQPController:
     def step(self, obs, command) -> np.ndarray:
         t0 = time.perf_counter()
         kin = self.kin
-        kin.update(obs)
+        base_pos, base_vel = self._trunk_state(obs)
+        kin.update(obs, base_pos, base_vel)
         rot = kin.rot
-        pos = obs.privileged.base_pos.tolist()
-        vel_arr = obs.privileged.base_linvel
-        vel = vel_arr.tolist()
+        pos = base_pos.tolist()
+        vel = base_vel.tolist()
         dt = self.dt
         if not self._started:
-            self._start(obs)
+            self._start(pos)
 
         # a gait hint picks the gait (see the module docstring); "stand" stands still; an unknown hint is ignored
         hint = getattr(obs, "gait_hint", None)
@@ -301,9 +319,29 @@ class ForceQPController:
         self.step_time_s += time.perf_counter() - t0
         return tau
 
-    def _start(self, obs) -> None:
+    def _trunk_state(self, obs):
+        """Trunk position and velocity (world) this tick: the estimate, or the truth when privileged."""
+        if self.est is None:
+            priv = obs.privileged
+            if priv is None:
+                raise RuntimeError(f"{self.name} was made with privileged=True but this run gives no privileged "
+                                   f"state (obs.privileged is None); use the default privileged=False, which "
+                                   f"estimates the trunk state")
+            return priv.base_pos, priv.base_linvel
+        # the feet the stack itself treats as stance (last tick's schedule) and the sensor says are down
+        c = self._est_contact
+        fc = obs.foot_contact
+        if fc.any():
+            np.logical_and(self.gait.contact_list, fc, out=c)
+        else:
+            # no contact sensing reported (or airborne): fully loaded stance feet, as the ground estimate does
+            c[:] = [ld >= 1.0 for ld in self.gait.load_list]
+        s = self.est.update(obs, contact=c)
+        return s.base_pos, s.base_linvel
+
+    def _start(self, pos) -> None:
         kin = self.kin
-        self._p_des[:] = obs.privileged.base_pos.tolist()
+        self._p_des[:] = pos
         self.yaw_des = so3.yaw_of_mat(kin.rot)
         self.ground.reset(kin.foot_pos.tolist(), kin.foot_height_nominal)
         self._started = True
@@ -392,3 +430,23 @@ class ForceQPL1Controller(ForceQPController):
             self.wrench.a_ff[:] = u
         else:
             self.wrench.a_ff[self._l1_chans] = u
+
+
+class ForceQPPrivilegedController(ForceQPController):
+    """force-qp reading the true trunk position and velocity (obs.privileged) instead of estimating them."""
+
+    name = "force-qp-privileged"
+
+    def __init__(self, **kwargs) -> None:
+        kwargs.setdefault("privileged", True)
+        super().__init__(**kwargs)
+
+
+class ForceQPL1PrivilegedController(ForceQPL1Controller):
+    """force-qp-l1 reading the true trunk position and velocity (obs.privileged) instead of estimating them."""
+
+    name = "force-qp-l1-privileged"
+
+    def __init__(self, **kwargs) -> None:
+        kwargs.setdefault("privileged", True)
+        super().__init__(**kwargs)
