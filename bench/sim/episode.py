@@ -55,6 +55,7 @@ import mujoco
 import numpy as np
 
 from bench.controllers.base import Observation
+from bench.controllers.seeding import reset_kwargs
 from bench.faults import FaultContext
 from bench.sim.contacts import CONTACT_DIST_M, ContactTable
 from bench.sim.interrupts import UserInterrupts, raised_reason
@@ -456,7 +457,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     watchdog.call_limit_s = math.inf
     c0 = watchdog.call_start = time.perf_counter()
     try:
-        controller.reset(robot, ctrl_dt)
+        controller.reset(robot, ctrl_dt, **reset_kwargs(controller, seed))   # + seed/rng if it takes them
         watchdog.call_start = 0.0
     except _ControllerHung as hung:
         watchdog.call_start = 0.0
