@@ -25,6 +25,7 @@ from bench.robot.model import NominalRobot
 from bench.scoring.verdict import score
 from bench.sim.episode import EpisodeLimits, run_episode
 from bench.sim.interrupts import UserInterrupts, raised_reason
+from bench.sim.signals import signal_names
 from bench.sim.trace import Trace
 from bench.world.build import build_world, manifest_for
 
@@ -133,5 +134,6 @@ def _run_job(job: Job, user: UserInterrupts) -> Outcome:
         watchdog_restored=(None if getattr(ep, "watchdog_restored", None) is None
                            else tuple(ep.watchdog_restored)),
         deciding=deciding,
+        controller_signals=tuple(signal_names(ep.trace.arrays)) or None,
     )
     return Outcome(record.to_json(), ep.trace, ep.events)

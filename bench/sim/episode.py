@@ -59,6 +59,7 @@ from bench.controllers.seeding import reset_kwargs
 from bench.faults import FaultContext
 from bench.sim.contacts import CONTACT_DIST_M, ContactTable
 from bench.sim.interrupts import UserInterrupts, raised_reason
+from bench.sim.signals import SignalError, SignalRecorder
 from bench.sim.events import Event, compile_forces, compile_masses, fault_events
 from bench.sim.faults import compile_faults
 from bench.sim.trace import Trace
@@ -478,6 +479,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     watchdog.call_limit_s = watchdog.tick_limit_s
     tick_limit_s = watchdog.tick_limit_s
     deadline = watchdog.deadline
+    signals = SignalRecorder.attach(controller, n_ticks)   # None (nothing per tick) unless it logs signals
 
     def apply_forces(step: int) -> None:
         d.xfrc_applied[trunk, :] = 0.0
@@ -597,6 +599,12 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
             if not np.isfinite(tau).all():
                 status, reason = "error", f"controller returned non-finite torques at tick {k} (t={t:.3f} s)"
                 break
+            if signals is not None:
+                try:
+                    signals.record(k)
+                except SignalError as exc:
+                    status, reason = "error", f"{exc} (t={t:.3f} s)"
+                    break
 
             # Faults on the command (latency), the limits, faults on the applied torque (limp joints),
             # then hold until the next tick.
@@ -660,6 +668,8 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
 
     n = k
     trace.truncate(n)
+    if signals is not None:
+        signals.into(trace.arrays, n)
     if n:
         A = trace.arrays
         _derive_rows(A, n, ctrl_dt, world, m, R_qvel[:n], R_xipos[:n], cmd_rows[:n])
