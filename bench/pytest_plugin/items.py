@@ -32,7 +32,8 @@ class ScenarioItem(pytest.Item):
         if self.clash:
             raise BenchFailure(self.clash)
         settings = settings_of(self.config)
-        run = execute(self.config, self, self.scenario, settings.controller)
+        run = execute(self.config, self, self.scenario, settings.controller, seed=settings.seed,
+                      controller_params=settings.controller_params)
         problems = []
         if not run.passed:
             problems.append(run.report())
@@ -72,7 +73,8 @@ class TrialsItem(ScenarioItem):
         if self.clash:
             raise BenchFailure(self.clash)
         settings = settings_of(self.config)
-        plan = make_plan([self.scenario], controller=settings.controller)
+        plan = make_plan([self.scenario], controller=settings.controller, seed=settings.seed,
+                         controller_params=settings.controller_params)
         runs = execute_plan(self.config, self, plan)
         (summary,) = trials_mod.group_summaries(plan.groups, [r.result for r in runs])
         _attach_trials(self, summary)
