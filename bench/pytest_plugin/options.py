@@ -88,6 +88,10 @@ class Settings:
     video_off: bool = False
     robot: str | None = None   # --bench-robot: every scenario runs on it
     seed: int | None = None    # --bench-seed: replaces every scenario's seed
+    trial_plans: dict = field(default_factory=dict)      # trials scenario id -> its Plan (this process)
+    trial_results: dict = field(default_factory=dict)    # trial id -> BenchRun run by this process
+    selected_trials: set = field(default_factory=set)    # trial ids that are items of this session
+    session_start_ns: int = 0                            # the controller's start (xdist workers share it)
     controller_params: dict = field(default_factory=dict)   # --bench-controller-param keywords
 
     @property
@@ -263,6 +267,9 @@ def pytest_configure(config) -> None:
     from bench.report.history import new_run_uid
 
     settings.run_uid = (workerinput or {}).get("bench_run_uid") or new_run_uid()
+    import time
+
+    settings.session_start_ns = int((workerinput or {}).get("bench_session_start_ns") or time.time_ns())
     if settings.active:
         # as bench run: a controller name that resolves to nothing is invalid input, before anything runs
         from bench.run.errors import InvalidInput
@@ -298,3 +305,4 @@ def pytest_configure(config) -> None:
 def pytest_configure_node(node) -> None:
     """pytest-xdist: every worker records its results under the session's run uid."""
     node.workerinput["bench_run_uid"] = settings_of(node.config).run_uid
+    node.workerinput["bench_session_start_ns"] = settings_of(node.config).session_start_ns
