@@ -217,6 +217,10 @@ def test_parameters_reach_the_constructor_and_the_record_and_make_a_stale_resume
     res = json.loads((tmp_path / "out" / "stand-1s" / "result.json").read_text())
     assert res["controller_params"] == {"label": "soft", "kd": [1.5]}
     assert res["controller_name"] == "gain-pd" and "controller_params" in res["fingerprint_parts"]
+    from bench.report.record import RunRecord
+
+    rec = RunRecord.from_json(res)   # the readers keep the new keys and write them back unchanged
+    assert rec.controller_params == {"label": "soft", "kd": [1.5]} and rec.to_json() == res
     capsys.readouterr()
     # --resume with the same parameters reuses the result; with others it runs again and says why
     assert bench_main(base + ["--resume", "--controller-param", "kd=[1.5]", "--controller-param", "label=soft"]) == 0

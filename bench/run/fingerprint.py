@@ -45,7 +45,9 @@ from typing import Any
 FORMAT = 1
 
 #: The parts, in the order they are reported.
-PARTS = ("scenario", "robot", "controller", "controller_params", "limits", "bench", "mujoco", "numpy")
+PARTS = ("scenario", "robot", "controller", "limits", "bench", "mujoco", "numpy")
+#: Parts present only when they apply (``controller_params``: when ``--controller-param`` was given).
+OPTIONAL_PARTS = ("controller_params",)
 
 SETTLE_NS = 2_000_000_000
 _lock = threading.Lock()
@@ -105,7 +107,7 @@ def stale_reason(result: dict, fp: Fingerprint) -> str:
     if digest == fp.digest:
         return ""
     old = parts if isinstance(parts, dict) else {}
-    changed = [PART_NOUNS.get(k, k) for k in PARTS if old.get(k) != fp.parts.get(k)]
+    changed = [PART_NOUNS.get(k, k) for k in PARTS + OPTIONAL_PARTS if old.get(k) != fp.parts.get(k)]
     if not changed:
         return "result.json was made with other inputs (its verdict fingerprint differs)"
     words = changed[0] if len(changed) == 1 else ", ".join(changed[:-1]) + " and " + changed[-1]
