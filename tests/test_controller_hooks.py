@@ -259,3 +259,11 @@ def test_sealed_controllers_get_the_same_seed_and_parameters_in_their_child(tmp_
     soft = _digest_of_run(tmp_path, "joint-pd", "--controller-param", "kp=60")
     assert soft != _digest_of_run(tmp_path, "joint-pd")
     assert _digest_of_run(tmp_path, "sealed:joint-pd", "--controller-param", "kp=60") == soft
+
+
+@pytest.mark.parametrize("command", [["limit", str(STAND_1S), "--vary", "payloads.crate.mass", "--range", "1", "5"],
+                                     ["envelope", str(STAND_1S), "--x", "payloads.crate.mass", "1", "5",
+                                      "--y", "duration", "0.5", "1"]])
+def test_limit_and_envelope_take_controller_params_too(command, tmp_path, capsys):
+    rc = bench_main(command + ["--controller", "joint-pd", "--controller-param", "kpp=3", "--out", str(tmp_path / "o")])
+    assert rc == 2 and "did you mean 'kp'?" in capsys.readouterr().err
