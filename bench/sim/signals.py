@@ -42,6 +42,13 @@ def signal_names(arrays) -> list[str]:
     return sorted(k[len(PREFIX):] for k in arrays if k.startswith(PREFIX))
 
 
+def _shape(value) -> tuple:
+    try:
+        return np.shape(value)
+    except Exception:  # noqa: BLE001 - ragged lists and the like: a shape no column has
+        return ("?",)
+
+
 class SignalRecorder:
     """Copies a controller's ``signals`` into per-tick columns (allocated on first sight of each name)."""
 
@@ -72,14 +79,18 @@ class SignalRecorder:
             col = columns.get(name)
             if col is None:
                 col = self._new(name, value, k)
-            try:
-                shape = np.shape(value)
-                if shape != shapes[name]:
-                    raise SignalError(f"controller signal {name!r} changed shape from {shapes[name]} to {shape} "
-                                      f"at tick {k}")
+            # Fast paths (a few hundred ns): a Python float for a scalar signal, an ndarray of the
+            # recorded shape for an array one; anything else goes through np.shape.
+            kind = type(value)
+            if kind is float and col.ndim == 1:
                 col[k] = value
-            except SignalError:
-                raise
+                continue
+            shape = value.shape if kind is np.ndarray else _shape(value)
+            if shape != shapes[name]:
+                raise SignalError(f"controller signal {name!r} changed shape from {shapes[name]} to {shape} "
+                                  f"at tick {k}")
+            try:
+                col[k] = value
             except Exception as exc:  # noqa: BLE001 - a value numpy cannot store as float64
                 raise SignalError(f"controller signal {name!r} at tick {k} is not numeric: {exc}") from None
 
@@ -97,7 +108,7 @@ class SignalRecorder:
             raise SignalError(f"controller signal {name!r} at tick {k} has {arr.size} values; at most {MAX_SIZE}")
         col = np.full((self.n_ticks, *arr.shape), np.nan)
         self.columns[name] = col
-        self.shapes[name] = np.shape(value)
+        self.shapes[name] = arr.shape
         return col
 
     def into(self, arrays: dict, n: int) -> None:
