@@ -221,6 +221,8 @@ def test_parameters_reach_the_constructor_and_the_record_and_make_a_stale_resume
 
     rec = RunRecord.from_json(res)   # the readers keep the new keys and write them back unchanged
     assert rec.controller_params == {"label": "soft", "kd": [1.5]} and rec.to_json() == res
+    assert bench_main(["report", out]) == 0
+    assert 'kd=[1.5], label=&quot;soft&quot;' in (tmp_path / "out" / "report.html").read_text()
     capsys.readouterr()
     # --resume with the same parameters reuses the result; with others it runs again and says why
     assert bench_main(base + ["--resume", "--controller-param", "kd=[1.5]", "--controller-param", "label=soft"]) == 0

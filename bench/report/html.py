@@ -379,6 +379,11 @@ def render_html(entries: list[Entry], summary: dict | None, page_dir: Path, titl
                                f" ({_num(r.get('realtime_factor'), '{:.1f}x')} real time)"),
                  ("controller time per tick", f"p50 {_num(ms.get('p50'), '{:.3f}')} ms, p99 "
                                               f"{_num(ms.get('p99'), '{:.3f}')} ms, max {_num(ms.get('max'), '{:.2f}')} ms")]
+        if r.get("controller_name") and r.get("controller_name") != r.get("controller"):
+            facts.append(("controller's own name", escape(str(r["controller_name"]))))
+        if r.get("controller_params"):
+            facts.append(("controller parameters", escape(", ".join(
+                f"{k}={json.dumps(v)}" for k, v in sorted(dict(r["controller_params"]).items())))))
         if r.get("trial_of"):
             facts.append(("trial of", escape(str(r["trial_of"]))))
         if r.get("tags"):
