@@ -141,6 +141,25 @@ def test_a_broken_signal_is_the_episodes_error_naming_it(stand, bad, words):
     assert ep.status == "error" and words in ep.reason, ep.reason
 
 
+class RaisingSignals(JointPDController):
+    def reset(self, robot, control_dt):
+        super().reset(robot, control_dt)
+        self._signals, self.k = {"x": 1.0}, 0
+
+    @property
+    def signals(self):
+        self.k += 1
+        if self.k == 5:
+            raise KeyError("estimator not ready")
+        return self._signals
+
+
+def test_a_signals_property_that_raises_is_the_episodes_error(stand):
+    world, sc, robot = stand
+    ep = run_episode(world, sc, RaisingSignals(), robot, seed=0)
+    assert ep.status == "error" and "KeyError" in ep.reason and "giving its signals at tick 3" in ep.reason, ep.reason
+
+
 def test_signals_reach_the_record_the_npz_the_plots_and_the_report(tmp_path):
     registry.register("logging-pd", Logging)
     out = tmp_path / "out"

@@ -605,6 +605,11 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 except SignalError as exc:
                     status, reason = "error", f"{exc} (t={t:.3f} s)"
                     break
+                except BaseException as exc:  # noqa: BLE001 - its own signals property or mapping raised
+                    if user.by_user(exc):
+                        raise
+                    status, reason = "error", raised_reason(exc, f"giving its signals at tick {k} (t={t:.3f} s)")
+                    break
 
             # Faults on the command (latency), the limits, faults on the applied torque (limp joints),
             # then hold until the next tick.
