@@ -4,7 +4,8 @@ The bench starts the program once per episode (in ``reset``), sends it a
 handshake describing the robot and the rates, then, every control tick, one
 observation line; the program answers each with one torque line. Any language
 that can read and write lines of text works (C++: ``std::getline`` and
-``std::strtod``). The full protocol, as the README documents it:
+``std::strtod``). The full protocol (published as docs/reference/external-protocol.md by
+``python -m bench.docgen``):
 
 Lines are UTF-8 text ending in ``\\n``; fields are separated by single spaces;
 numbers are decimal floats as C's ``strtod`` reads them (the bench writes the

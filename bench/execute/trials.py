@@ -55,6 +55,25 @@ class TrialGroup:
     indices: list[int] = field(default_factory=list)
 
 
+#: Keys of one `trials` entry of summary.json (documented by `python -m bench.docgen`).
+TRIAL_ENTRY_DOCS = {
+    "scenario": "the trial scenario's id (without the trial label)",
+    "source": "its scenario file",
+    "declared_trials": "`trials:` in the file",
+    "trials": "trials run (fewer with `--only`)",
+    "passed": "trials passed",
+    "rate": "observed pass rate",
+    "interval": "Wilson score interval of the pass rate, `[lo, hi]`",
+    "confidence": "confidence of the interval (0.95)",
+    "required": "`pass_rate_min` (null: every trial must pass)",
+    "decided_on": "the rule applied, in words",
+    "verdict": "`passed` or `failed`",
+    "failing": "ids of the trials that did not pass",
+    "errors": "ids of the trials that ended in `error` or `timeout`",
+    "trials_needed": "fewest trials that could pass `required` at all",
+}
+
+
 def judge(results: list[dict], required: float | None) -> dict:
     """Rate, Wilson interval and verdict of a list of trial results (any status not `passed` fails)."""
     from bench.report.record import as_record

@@ -26,6 +26,43 @@ REQUIRED_KEYS = ("scenario", "source", "controller", "seed", "status", "passed",
                  "mujoco_version")
 STATUSES = ("passed", "failed", "error", "timeout")
 
+#: What each key of result.json means (the file format's documentation: `python -m bench.docgen` writes
+#: docs/reference/result-files.md from it; a test checks that every key of `RunRecord` has an entry).
+KEY_DOCS = {
+    "scenario": "scenario id (matrix variants and trials carry their `[label=value]` suffix)",
+    "source": "scenario file as given on the command line",
+    "controller": "controller as given (`--controller`)",
+    "seed": "seed used",
+    "status": "`passed`, `failed`, `error` or `timeout`",
+    "passed": "`status == \"passed\"`",
+    "reason": "one sentence when not passed: the deciding criterion, or the fault; null when passed",
+    "sim_time_s": "simulated time, s",
+    "wall_time_s": "wall-clock time of the episode, s (differs run to run)",
+    "realtime_factor": "`sim_time_s / wall_time_s`",
+    "controller_ms": "controller compute time per tick, ms: `p50`, `p99`, `max` (wall clock)",
+    "criteria": "one entry per criterion: `name`, `value`, `limit`, `passed`, `first_violation_s`, and "
+                "`margin` when it has a numeric limit",
+    "metrics": "every metric computed, name -> number (see metrics-and-criteria.md)",
+    "bench_version": "version of the bench that wrote the file",
+    "mujoco_version": "MuJoCo version used",
+    "content_hash": "sha256 of the merged scenario document",
+    "tags": "scenario tags",
+    "events": "timed events that happened (pushes, load changes, faults)",
+    "episode_status": "how the episode ended (`completed`, `fell`, ...); present when it ran",
+    "score_from_s": "start of the scoring window, s; present when it ran",
+    "trace_sha256": "digest of the trace arrays, timing columns excluded; present when it ran",
+    "mujoco_warnings": "MuJoCo warnings raised during the episode; present when it ran",
+    "traceback": "present only for a fault of the bench itself inside the episode",
+    "trial_of": "present for a trial: the id of its trial scenario",
+    "watchdog_restored": "what the watchdog put back after the controller changed it; present when it ran",
+    "fingerprint": "verdict fingerprint: sha256 of everything that decided the verdict",
+    "fingerprint_parts": "part name -> hash or version (`scenario`, `robot`, `controller`, `limits`, `bench`, "
+                         "`mujoco`, `numpy`), so a changed part can be named",
+    "result_uid": "unique id of this result (uuid4 hex), the key of its history row; a reused result keeps its own",
+    "deciding": "the deciding criterion: `name`, `value`, `limit`, `margin`, `first_violation_s`, `passed` "
+                "(null for `error` and `timeout`)",
+}
+
 
 class RecordError(ValueError):
     """A result.json that does not hold a run record; the message names the key."""

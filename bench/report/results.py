@@ -85,6 +85,18 @@ def write_outcome(out_dir: Path, slug: str, outcome) -> Path:
     return d / "result.json"
 
 
+#: What each key of summary.json means (documented by `python -m bench.docgen`; keys are only added).
+SUMMARY_DOCS = {
+    "total": "episodes in this run",
+    "passed": "episodes that passed",
+    "failed": "episodes that failed their criteria",
+    "errors": "episodes that ended in `error` or `timeout`",
+    "results": "one entry per episode in run order: `scenario`, `status`, `reason`, `result` (path of its "
+               "result.json relative to the results folder)",
+    "trials": "present when the run had trial scenarios: one entry per trial scenario (keys below)",
+}
+
+
 def write_summary(out_dir: Path, entries: list[tuple[str, dict]], trials: list[dict] | None = None) -> dict:
     """``entries``: (slug, result) pairs in run order; ``trials``: one entry per trial scenario, if any."""
     results = []

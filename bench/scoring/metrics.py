@@ -1,6 +1,6 @@
 """Metrics: a Trace -> named floats, plus the per-tick error series criteria need.
 
-Conventions (documented in the README):
+Conventions:
 - trunk height error: trunk origin height above the ground under it, minus the
   robot's nominal standing height;
 - roll and pitch error: trunk roll and pitch (intrinsic z-y-x Euler angles of the
@@ -12,6 +12,8 @@ Conventions (documented in the README):
   velocity against the commanded yaw rate. Ticks within ``settle_s`` after a
   command change are left out ("once settled").
 Error metrics cover ticks with ``t >= score_from``.
+
+Each metric's meaning is in `METRIC_DOCS` (published as docs/reference/metrics-and-criteria.md).
 """
 
 from __future__ import annotations
@@ -147,3 +149,33 @@ def compute_metrics(trace: Trace, score_from: float = 0.0, settle_s: float = COM
         if np.isfinite(v):
             met[f"controller.{k}"] = float(v)
     return met, series
+
+
+#: What each metric of ``compute_metrics`` means (published by `python -m bench.docgen`; a test checks that
+#: every metric computed has an entry). ``controller.<name>`` metrics come from a controller's ``stats()``.
+METRIC_DOCS = {
+    "height_error_max": "largest |trunk height error|, m: trunk origin height above the ground under it minus "
+                        "the nominal standing height",
+    "height_error_mean": "mean |trunk height error|, m",
+    "height_error_rms": "RMS trunk height error, m",
+    "height_error_signed_mean": "mean signed trunk height error, m (negative: the trunk sags)",
+    "roll_error_deg_max": "largest |roll| of the trunk (intrinsic z-y-x Euler angles) against level, deg",
+    "roll_error_deg_mean": "mean |roll| of the trunk, deg",
+    "pitch_error_deg_max": "largest |pitch| of the trunk against level, deg",
+    "pitch_error_deg_mean": "mean |pitch| of the trunk, deg",
+    "drift_max": "largest horizontal distance from the position at score_from, over ticks commanded to stand, m",
+    "distance": "net horizontal distance travelled over the episode, m",
+    "path_length": "horizontal path length travelled, m",
+    "velocity_rmse": "RMSE of the heading-frame trunk velocity against the commanded vx, vy, leaving out "
+                     "1 s after each command change, m/s",
+    "yaw_rate_rmse": "RMSE of the world-z angular velocity against the commanded yaw rate, same window, rad/s",
+    "torque_saturation": "share of ticks with any joint at 99 % of its (possibly derated) torque limit",
+    "controller_ms_p50": "median controller compute time per tick, ms (wall clock)",
+    "controller_ms_p99": "99th percentile of controller compute time per tick, ms (wall clock)",
+    "controller_ms_max": "largest controller compute time of a tick, ms (wall clock)",
+    "fell": "1 when the robot fell (trunk, hip or thigh touched the ground, or the trunk origin dropped below "
+            "40 % of the nominal height above the ground under it), else 0",
+    "survival_time_s": "simulated time until the episode ended (the fall, or the end), s",
+    "total_mass_max": "largest robot-plus-payload mass during the episode, kg",
+    "ext_impulse_ns": "sum over ticks of |disturbance force| times the control period, N s",
+}

@@ -1,7 +1,7 @@
 """The Trace: what an episode recorded, one row per control tick.
 
-Keys and meanings are the documented ``trace.npz`` format (README, "What a run
-writes"); extra keys are allowed and never change meaning. ``meta`` carries the scalars scoring needs
+Keys and meanings are the documented ``trace.npz`` format (`KEY_DOCS`, published as
+docs/reference/result-files.md); extra keys are allowed and never change meaning. ``meta`` carries the scalars scoring needs
 (nominal height, control period, fall time) so that scoring reads only a Trace.
 """
 
@@ -23,6 +23,30 @@ CONTRACT_KEYS = (
 )
 #: Extra keys this bench adds (allowed by the contract).
 EXTRA_KEYS = ("qpos", "torque_limit", "controller_ms", "foot_contact", "payload_mass")
+#: What each trace key holds (N = control ticks, J = joints, F = feet, in manifest order; world frame z-up,
+#: quaternions w, x, y, z). Published by `python -m bench.docgen`; a test checks every key has an entry.
+KEY_DOCS = {
+    "t": "(N,) time of the tick, s",
+    "base_pos": "(N, 3) trunk origin, world, m",
+    "base_quat": "(N, 4) trunk orientation, world, w x y z",
+    "base_linvel": "(N, 3) trunk linear velocity, world, m/s",
+    "base_angvel": "(N, 3) trunk angular velocity, body frame, rad/s",
+    "joint_pos": "(N, J) joint angles, rad",
+    "joint_vel": "(N, J) joint velocities, rad/s",
+    "joint_torque": "(N, J) torque applied, after the (possibly derated) limits, N m",
+    "foot_pos": "(N, F, 3) foot site positions, world, m",
+    "foot_force": "(N, F, 3) ground reaction force on each foot, world, N",
+    "command": "(N, 3) velocity command `vx, vy, yaw_rate`, body frame",
+    "total_mass": "(N,) robot plus every carried payload at that tick, kg",
+    "com_pos": "(N, 3) centre of mass of robot plus carried payloads, world, m",
+    "ext_force": "(N, 3) sum of the disturbance forces acting, world, N",
+    "terrain_height": "(N,) ground height under the trunk, m",
+    "qpos": "(N, nq) full MuJoCo position state, for exact replay",
+    "torque_limit": "(N, J) torque limits in force (after derating), N m",
+    "controller_ms": "(N,) controller compute time of the tick, ms (wall clock; left out of the trace digest)",
+    "foot_contact": "(N, F) foot touching the ground (bool)",
+    "payload_mass": "(N, P) mass of each payload at that tick, kg (0 while not attached)",
+}
 
 
 @dataclass
