@@ -11,21 +11,20 @@ import pytest
 
 from bench.robot.locate import resolve_robot
 from bench.robot.manifest import RobotManifest
-from bench.robot.model import NominalRobot
+from bench.robot.model import ATTRIBUTE_TYPES, NominalRobot
 
-_LINE = re.compile(r"^    (?P<name>[a-z_]+) : (?P<type>dict\[str, int\]|[^\s(]+)(?: \((?P<shape>[^)]*)\))?(?P<opt>, optional)?$")
+_TYPE = re.compile(r"^(?P<type>dict\[str, int\]|[^\s(,]+)(?: \((?P<shape>[^)]*)\))?(?P<opt>, optional)?$")
 _TYPES = {"RobotManifest": RobotManifest, "MjModel": mujoco.MjModel, "float": float, "int": int,
           "dict[str, int]": dict, "object": object}
 
 
 def documented() -> dict[str, tuple[str, str | None, bool]]:
-    doc = NominalRobot.__doc__
-    section = doc.split("Attributes\n    ----------\n", 1)[1]
+    """``name -> (type, shape, optional)`` as the docstring states them (read by bench.robot.model)."""
     out = {}
-    for line in section.splitlines():
-        m = _LINE.match(line)
-        if m:
-            out[m["name"]] = (m["type"], m["shape"], bool(m["opt"]))
+    for name, text in ATTRIBUTE_TYPES.items():
+        m = _TYPE.match(text)
+        assert m, f"{name}: cannot read the type {text!r}"
+        out[name] = (m["type"], m["shape"], bool(m["opt"]))
     return out
 
 

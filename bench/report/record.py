@@ -57,10 +57,16 @@ KEY_DOCS = {
     "watchdog_restored": "what the watchdog put back after the controller changed it; present when it ran",
     "fingerprint": "verdict fingerprint: sha256 of everything that decided the verdict",
     "fingerprint_parts": "part name -> hash or version (`scenario`, `robot`, `controller`, `limits`, `bench`, "
-                         "`mujoco`, `numpy`), so a changed part can be named",
+                         "`mujoco`, `numpy`, and `controller_params` when parameters were given), so a changed "
+                         "part can be named",
     "result_uid": "unique id of this result (uuid4 hex), the key of its history row; a reused result keeps its own",
     "deciding": "the deciding criterion: `name`, `value`, `limit`, `margin`, `first_violation_s`, `passed` "
                 "(null for `error` and `timeout`)",
+    "controller_params": "the `--controller-param` keywords the controller was made with, name -> value; "
+                         "present when some were given",
+    "controller_name": "the controller object's own `name` attribute; present when it has one",
+    "controller_signals": "names of the per-tick signals the controller logged (`signal_<name>` in trace.npz); "
+                          "present when it logged any",
 }
 
 

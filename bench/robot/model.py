@@ -197,34 +197,27 @@ class NominalRobot:
                 f"feet={self.num_feet}, mass_kg={self.mass_kg:.3f})")
 
 
-#: What each public attribute of `NominalRobot` holds (published by `python -m bench.docgen` in
-#: docs/reference/controller-api.md; a test checks that every attribute has an entry). Arrays are read-only
-#: and in manifest order; ids index the robot-only `model`.
-ATTRIBUTE_DOCS = {
-    "manifest": "the robot manifest (a private copy)",
-    "model": "robot-only MuJoCo model: floating base, gravity on, no floor, no payloads",
-    "mass_kg": "total mass, kg (mj_getTotalmass)",
-    "trunk_body_id": "body id of the trunk",
-    "trunk_qpos_adr": "qpos address of the trunk's free joint: position (3), then quaternion w x y z (4)",
-    "trunk_dof_adr": "dof address of the trunk's free joint: linear velocity world (3), angular velocity body (3)",
-    "imu_site_id": "site id of the IMU",
-    "sensor_ids": "IMU role (orientation, gyro, accelerometer) -> sensor id",
-    "sensor_adr": "IMU role -> address in sensordata",
-    "joint_ids": "joint ids (J,)",
-    "joint_qpos_adr": "qpos address of each joint (J,)",
-    "joint_dof_adr": "dof address of each joint (J,)",
-    "joint_range": "joint limits (J, 2), rad",
-    "joint_limited": "whether each joint has limits (J,)",
-    "actuator_ids": "actuator id of each joint's motor (J,)",
-    "foot_site_ids": "site id of each foot (F,)",
-    "foot_geom_ids": "geom id of each foot (F,)",
-    "fall_geom_ids": "geoms whose ground contact is a fall",
-    "torque_limits": "motor torque limits (J,), N m (the manifest's; a derate fault lowers what is applied)",
-    "nominal_pose": "standing joint angles (J,), rad",
-    "nominal_height": "trunk origin height above flat ground when standing, m",
-    "nominal_qpos": "full qpos of the robot standing at nominal_height above the origin",
-    "trunk_inertia_body": "whole-robot inertia about its centre of mass, trunk frame (3, 3), kg m^2",
-    "com_offset_trunk": "whole-robot centre of mass relative to the trunk origin, trunk frame (3,), m",
-    "num_joints": "J, the number of joints",
-    "num_feet": "F, the number of feet",
-}
+def _attribute_section(doc: str) -> dict[str, tuple[str, str]]:
+    """``name -> (type, meaning)`` from the Attributes section of a numpy-style docstring."""
+    import inspect
+    import re
+
+    section = inspect.cleandoc(doc).split("Attributes\n----------\n", 1)[1]
+    out: dict[str, list[str]] = {}
+    name = None
+    for line in section.splitlines():
+        head = re.match(r"^(\w+) : (.+)$", line)
+        if head:
+            name = head[1]
+            out[name] = [head[2], ""]
+        elif name and line.strip():
+            out[name][1] = (out[name][1] + " " + line.strip()).strip()
+    return {k: (t, m) for k, (t, m) in out.items()}
+
+
+#: What each public attribute of `NominalRobot` holds and its declared type (``ndarray[int64] (J,)``),
+#: read from its docstring's Attributes section, the one place they are written. Published by
+#: `python -m bench.docgen` in docs/reference/controller-api.md; tests check that every attribute has an
+#: entry and has the type stated.
+ATTRIBUTE_TYPES = {k: t for k, (t, _) in _attribute_section(NominalRobot.__doc__).items()}
+ATTRIBUTE_DOCS = {k: m for k, (_, m) in _attribute_section(NominalRobot.__doc__).items()}

@@ -46,6 +46,8 @@ KEY_DOCS = {
     "controller_ms": "(N,) controller compute time of the tick, ms (wall clock; left out of the trace digest)",
     "foot_contact": "(N, F) foot touching the ground (bool)",
     "payload_mass": "(N, P) mass of each payload at that tick, kg (0 while not attached)",
+    "signal_<name>": "(N, ...) a signal the controller logged each tick (its `signals` mapping), float64, NaN "
+                     "where it was missing; left out of the trace digest",
 }
 
 
