@@ -10,15 +10,40 @@ from bench.cli import UsageError
 ORDER = 20
 
 
+#: ``--size`` names for common frame sizes.
+SIZE_NAMES = {"360p": (640, 360), "540p": (960, 540), "720p": (1280, 720), "1080p": (1920, 1080)}
+
+
 def add_video_options(p) -> None:
-    """Camera, size, frame rate and slow motion; shared with ``bench run --video``."""
-    p.add_argument("--camera", default="track", choices=("track", "side", "top"),
-                   help="trunk-tracking camera, or a fixed side or top view (default track)")
-    p.add_argument("--width", type=int, default=640, metavar="PX", help="frame width (default 640)")
-    p.add_argument("--height", type=int, default=360, metavar="PX", help="frame height (default 360)")
+    """Camera, size, frame rate, slow motion and preview; shared with ``bench run --video`` and ``bench report``."""
+    from bench.render.defaults import CAMERAS, DEFAULT_SIZE, PREVIEW_FORMATS
+
+    p.add_argument("--camera", default="follow", choices=CAMERAS,
+                   help="follow: tracks the trunk smoothly and looks ahead along the heading, rising and falling "
+                        "with the terrain (default); track: the older trunk-fixed view; side, top: fixed views")
+    p.add_argument("--size", default=None, metavar="WxH",
+                   help=f"frame size, e.g. 1920x1080 or one of {', '.join(SIZE_NAMES)} (default "
+                        f"{DEFAULT_SIZE[0]}x{DEFAULT_SIZE[1]}; a side-by-side video's panels are half that unless a "
+                        "size is given)")
+    p.add_argument("--width", type=int, default=None, metavar="PX", help="frame width (overrides --size)")
+    p.add_argument("--height", type=int, default=None, metavar="PX", help="frame height (overrides --size)")
     p.add_argument("--fps", type=float, default=30.0, metavar="N", help="frames per second (default 30)")
     p.add_argument("--slowmo", type=float, default=1.0, metavar="F",
                    help="play F times slower than simulated time (default 1.0; 2 = half speed)")
+    p.add_argument("--preview", default="gif", choices=PREVIEW_FORMATS,
+                   help="a short looping animation beside each main video, for pull-request comments: "
+                        "gif (default), webp, or none")
+
+
+def parse_size(text: str) -> tuple[int, int]:
+    """``1280x720`` or a name from :data:`SIZE_NAMES` -> (width, height); UsageError otherwise."""
+    t = str(text).strip().lower()
+    if t in SIZE_NAMES:
+        return SIZE_NAMES[t]
+    parts = t.replace("*", "x").split("x")
+    if len(parts) == 2 and all(x.strip().isdigit() for x in parts):
+        return int(parts[0]), int(parts[1])
+    raise UsageError(f"--size: {text!r} is not WIDTHxHEIGHT (e.g. 1280x720) or one of {', '.join(SIZE_NAMES)}")
 
 
 def register(sub) -> None:
@@ -44,11 +69,23 @@ def register(sub) -> None:
     p.set_defaults(func=run)
 
 
-def options_from(args, **extra):
+def options_from(args, compare: bool = False, **extra):
+    """VideoOptions from the parsed options; ``compare``: for a side-by-side video, whose two panels are half the
+    default size each when no size was given. Raises UsageError naming the option."""
+    from bench.render.defaults import DEFAULT_SIZE
     from bench.render.video import VideoOptions
 
-    opts = VideoOptions(camera=args.camera, width=args.width, height=args.height, fps=args.fps, slowmo=args.slowmo,
-                        **extra)
+    size = getattr(args, "size", None)
+    if size is not None:
+        w, h = parse_size(size)
+    elif compare:
+        w, h = DEFAULT_SIZE[0] // 2, DEFAULT_SIZE[1] // 2
+    else:
+        w, h = DEFAULT_SIZE
+    w = args.width if getattr(args, "width", None) is not None else w
+    h = args.height if getattr(args, "height", None) is not None else h
+    opts = VideoOptions(camera=args.camera, width=w, height=h, fps=args.fps, slowmo=args.slowmo,
+                        preview=getattr(args, "preview", "gif"), **extra)
     problems = opts.problems()
     if problems:
         raise UsageError("; ".join(problems))
@@ -91,6 +128,7 @@ def run(args) -> int:
     if not args.dirs and not args.compare:
         raise UsageError("give a RESULT_DIR or --compare A_DIR B_DIR")
     opts = options_from(args, violation_clip=not args.no_clip)
+    cmp_opts = options_from(args, compare=True, violation_clip=not args.no_clip) if args.compare else None
     dirs = result_dirs(args.dirs, args.only) if args.dirs else []
     made, failed = [], 0
     try:
@@ -100,7 +138,7 @@ def run(args) -> int:
                 if not (Path(d) / "result.json").is_file():
                     raise UsageError(f"--compare: {Path(d) / 'result.json'}: no such file")
             try:
-                made.append(render_compare(a, b, args.out, opts, scenario=args.scenario, roots=args.root))
+                made.append(render_compare(a, b, args.out, cmp_opts, scenario=args.scenario, roots=args.root))
             except RenderUnavailable:
                 raise
             except RenderInputError as exc:

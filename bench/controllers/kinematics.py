@@ -64,6 +64,7 @@ class LegKinematics:
 
         self.jac = np.zeros((3 * self.n_feet, self.nv))
         self._jac_rows = [self.jac[3 * i:3 * i + 3] for i in range(self.n_feet)]
+        self._jac_args = list(zip(self._jac_rows, self._sites))   # (rows, site) per foot, for the tick's loop
         if isinstance(self._jv, slice):
             self.jac_joints = self.jac[:, self._jv]          # a view: no copy per tick
             self._copy_jac = False
@@ -120,10 +121,9 @@ class LegKinematics:
             self._qvel[self._jv] = obs.joint_vel
         mujoco.mj_kinematics(m, d)
         mujoco.mj_comPos(m, d)
-        rows = self._jac_rows
         jac_site = mujoco.mj_jacSite
-        for i, s in enumerate(self._sites):
-            jac_site(m, d, rows[i], None, s)
+        for rows, s in self._jac_args:
+            jac_site(m, d, rows, None, s)
         if self._feet_xpos is not None:
             self.foot_pos[:] = self._feet_xpos
         else:
@@ -134,7 +134,7 @@ class LegKinematics:
         if self.with_bias:
             mujoco.mj_comVel(m, d)
             mujoco.mj_rne(m, d, 0, self._bias_full)
-            if not isinstance(self._jv, slice):
+            if self._copy_jac:   # joint dofs not one range: bias is not a view of _bias_full
                 np.take(self._bias_full, self._jv, out=self.bias)
 
     def torques(self, u: np.ndarray, out: np.ndarray) -> np.ndarray:

@@ -8,15 +8,17 @@ error) holds its last frame, marked as ended, until the other one finishes.
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
 from PIL import Image
 
 from bench.render.encode import Mp4Writer
 from bench.render.overlays import label_bar
+from bench.render.preview import PREVIEW_WIDTH, PreviewCollector, preview_path
 from bench.render.replay import RenderInputError, load_recording
-from bench.render.video import (EpisodeView, VideoOptions, frame_rows, poster_time, record_media, safe_name,
-                                save_poster, scenario_stem)
+from bench.render.video import (EpisodeView, VideoOptions, first_violation, frame_rows, poster_time, record_media,
+                                safe_name, save_poster, scenario_stem)
 
 #: Pixels between the two panels.
 GAP_PX = 4
@@ -27,15 +29,19 @@ def compare_stem(a, b) -> str:
 
 
 def render_compare(a_dir: str | Path, b_dir: str | Path, out_dir: str | Path = "videos",
-                   opts: VideoOptions | None = None, scenario=None, roots=()) -> Path:
-    """Write ``<out>/<scenario>.<A>-vs-<B>.mp4``; each panel is ``opts.width`` x ``opts.height``."""
+                   opts: VideoOptions | None = None, scenario=None, roots=(), allow_changed_scenario: bool = False) -> Path:
+    """Write ``<out>/<scenario>.<A>-vs-<B>.mp4``; each panel is ``opts.width`` x ``opts.height``.
+
+    ``allow_changed_scenario``: the two runs may have used different versions of the scenario file (a
+    baseline and a candidate that edited it); each panel is then rebuilt from its own run's file, and the
+    replay check still refuses a file edited after its run. Not allowed together with ``scenario``."""
     opts = opts or VideoOptions()
     a, b = load_recording(a_dir), load_recording(b_dir)
     if a.scenario_id != b.scenario_id:
         raise RenderInputError(f"--compare needs two results of the same scenario: {a.dir} is "
                                f"{a.scenario_id!r}, {b.dir} is {b.scenario_id!r}")
     ha, hb = (r.record.content_hash if r.record is not None else r.result.get("content_hash") for r in (a, b))
-    if ha and hb and ha != hb:
+    if ha and hb and ha != hb and (scenario is not None or not allow_changed_scenario):
         raise RenderInputError(f"--compare: {a.dir} and {b.dir} ran different versions of scenario "
                                f"{a.scenario_id!r} (content_hash differs); re-run both from the same file")
     w, h = opts.width, opts.height
@@ -56,6 +62,9 @@ def render_compare(a_dir: str | Path, b_dir: str | Path, out_dir: str | Path = "
         canvas = Image.new("RGB", (2 * w + GAP_PX, h + bar_h), (25, 25, 25))
         for i, bar in enumerate(bars):
             canvas.paste(bar, (i * (w + GAP_PX), 0))
+        # The preview shows the earliest first violation of the two (or, when both passed, the first's events).
+        telling = min((v.rec.result for v in views), key=lambda r: (first_violation(r, t1) or (float("inf"),))[0])
+        collector = (PreviewCollector.for_result(telling, t0, t1, opts.slowmo, width=2 * PREVIEW_WIDTH) if opts.preview != "none" else None)
         with Mp4Writer(out, canvas.width, canvas.height, opts.fps) as wr:
             t_poster = min(poster_time(v.rec.result, t0, t1) for v in views)
             poster = None
@@ -73,15 +82,21 @@ def render_compare(a_dir: str | Path, b_dir: str | Path, out_dir: str | Path = "
                     canvas.paste(panels[i], (i * (w + GAP_PX), bar_h))
                 if poster is None and t >= t_poster - 1e-9:
                     poster = canvas.copy()
+                if collector is not None:
+                    collector.offer(float(t), canvas)
                 wr.write(canvas)
             for i, v in enumerate(views):
                 canvas.paste(v.banner(panels[i]), (i * (w + GAP_PX), bar_h))
+            if collector is not None:
+                collector.end(canvas)
             for _ in range(int(round(opts.hold_end_s * opts.fps))):
                 wr.write(canvas)
         save_poster(poster or canvas, out)
+        prev = collector.write(preview_path(out, opts.preview), opts.preview) if collector is not None else None
         for v in views:
+            extra = {"preview": os.path.relpath(prev.resolve(), Path(v.rec.dir).resolve())} if prev else {}
             record_media(v.rec.dir, "compare", out, other=str(Path(b_dir if v.rec is a else a_dir)),
-                         camera=opts.camera, fps=opts.fps, slowmo=opts.slowmo)
+                         camera=opts.camera, fps=opts.fps, slowmo=opts.slowmo, width=w, height=h, **extra)
         return out
     finally:
         for v in views:

@@ -191,3 +191,93 @@ def plot_result(result_dir: str | Path, score_from: float | None = None,
     if rec.trace is None:
         return None
     return plot_trace(rec.trace, rec.result, rec.dir / PLOTS_FILE, score_from, foot_names=foot_names)
+
+
+#: Line colours of the two runs in an overlay plot (baseline, candidate): a colour-blind-safe pair.
+OVERLAY_COLOURS = ("#1f77b4", "#d95f02")
+
+
+def plot_overlay(runs, dpi: int = 80) -> bytes:
+    """Two runs of one scenario on the same axes, as PNG bytes.
+
+    ``runs``: two ``(label, trace, result)`` triples, the baseline first. Panels: height
+    error, roll, pitch, forward velocity (with its command) and yaw rate. Limits come
+    from the second run's criteria (dashed red); each run's first violation is a
+    vertical line in its colour, and the end of an episode that stopped early is
+    marked with a cross.
+    """
+    import io
+
+    import matplotlib
+
+    matplotlib.use("Agg", force=False)
+    from matplotlib.figure import Figure
+
+    from bench.scoring.metrics import error_series
+
+    fig = Figure(figsize=(10, 9), dpi=dpi)
+    fig.subplots_adjust(left=0.1, right=0.985, top=0.93, bottom=0.06, hspace=0.12)
+    axes = fig.subplots(5, 1, sharex=True)
+    sid = next((str(r.get("scenario")) for _, _, r in runs if r.get("scenario")), "?")
+    fig.suptitle(f"{sid}: " + "  vs  ".join(f"{label} {str(r.get('status', '?')).upper()}" for label, _, r in runs),
+                 fontsize=11)
+    crit = _criteria(runs[-1][2])
+    panels = (("height_error", 1000.0, "height error\n[mm]", ("height_error_max", "height_error_rms")),
+              ("roll_error_deg", 1.0, "roll [deg]", ("roll_error_max_deg",)),
+              ("pitch_error_deg", 1.0, "pitch [deg]", ("pitch_error_max_deg",)),
+              ("vx", 1.0, "forward velocity\n[m/s]", ()),
+              ("yaw_rate", 1.0, "yaw rate\n[rad/s]", ()))
+    t_end = max((float(tr.arrays["t"][-1]) for _, tr, _ in runs if tr is not None and len(tr)), default=0.0)
+    for i, (label, trace, result) in enumerate(runs):
+        colour = OVERLAY_COLOURS[i % len(OVERLAY_COLOURS)]
+        style = "--" if i == 0 else "-"
+        if trace is None or len(trace) == 0:
+            axes[0].text(0.01, 0.9 - 0.12 * i, f"{label}: no trace recorded", transform=axes[0].transAxes,
+                         color=colour, fontsize=8)
+            continue
+        A = trace.arrays
+        stride = max(1, math.ceil(len(trace) / MAX_POINTS))
+        s = slice(None, None, stride)
+        t = A["t"][s]
+        ser = error_series(trace)
+        ser["vx"] = ser["v_heading"][:, 0]
+        for ax, (key, scale, _, _) in zip(axes, panels):
+            ax.plot(t, ser[key][s] * scale, color=colour, lw=1.2, ls=style, label=label)
+        axes[3].plot(t, A["command"][s][:, 0], color=colour, lw=0.8, ls=":", label=f"{label} command")
+        fv = [c["first_violation_s"] for c in _criteria(result).values()
+              if not c.get("passed") and c.get("first_violation_s") is not None]
+        for ax in axes:
+            if fv:
+                ax.axvline(min(fv), color=colour, lw=1.3, alpha=0.8)
+        if result.get("status") != "passed" and fv:
+            axes[0].text(min(fv), 0.02 + 0.1 * i, f" {label}: first violation {min(fv):.2f} s",
+                         transform=axes[0].get_xaxis_transform(), fontsize=7, color=colour)
+        if float(A["t"][-1]) < t_end - 1e-9:       # this episode stopped before the other one (a fall, an error)
+            for ax, (key, scale, _, _) in zip(axes, panels):
+                ax.plot([float(A["t"][-1])], [float(ser[key][-1]) * scale], marker="x", ms=8, color=colour)
+    for ax, (_, scale, ylabel, lims) in zip(axes, panels):
+        for name in lims:
+            lim = _limit(crit, name)
+            if lim is not None:
+                ax.axhline(lim * scale, color="#d62d20", ls="--", lw=0.9)
+                ax.axhline(-lim * scale, color="#d62d20", ls="--", lw=0.9)
+        ax.set_ylabel(ylabel)
+        ax.grid(True, alpha=0.3)
+        ax.legend(loc="upper right", fontsize=7, ncol=4, framealpha=0.7)
+    axes[-1].set_xlabel("time [s]")
+    if t_end > 0:
+        axes[-1].set_xlim(0.0, t_end)
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png")
+    return buf.getvalue()
+
+
+def plot_overlay_dirs(a_dir: str | Path, b_dir: str | Path, labels: tuple[str, str] = ("baseline", "candidate"),
+                      dpi: int = 80) -> bytes | None:
+    """:func:`plot_overlay` of two result folders; None when neither has a trace."""
+    from bench.render.replay import load_recording
+
+    recs = [load_recording(d, need_trace=False) for d in (a_dir, b_dir)]
+    if all(r.trace is None for r in recs):
+        return None
+    return plot_overlay([(lab, r.trace, r.result) for lab, r in zip(labels, recs)], dpi=dpi)

@@ -2,7 +2,8 @@
 
 Shadows, reflections and multisampling are off: on Mesa's software renderer
 they cost more than the rest of the frame together, and a review video does not
-need them. Frames come back top row first, as (height, width, 3) uint8.
+need them (``shadows=True`` turns shadows and a reflective floor on, for the
+benchmark that measures what they cost). Frames come back top row first, as (height, width, 3) uint8.
 """
 
 from __future__ import annotations
@@ -10,6 +11,8 @@ from __future__ import annotations
 import mujoco
 import numpy as np
 
+from bench.render.camera import project
+from bench.render.defaults import CAMERAS
 from bench.render.gl import make_context
 
 #: Arrow length per newton of force, m (100 N draws as 0.4 m).
@@ -18,25 +21,31 @@ FORCE_SCALE_M_PER_N = 0.004
 FORCE_MIN_N = 1.0
 FOOT_ARROW_RGBA = np.array([0.15, 0.85, 0.95, 0.9], dtype=np.float32)
 PUSH_ARROW_RGBA = np.array([0.95, 0.15, 0.15, 0.95], dtype=np.float32)
-CAMERAS = ("track", "side", "top")
+#: Shadow map size and floor reflectance used when shadows are asked for (MuJoCo's own default shadow size).
+SHADOW_SIZE = 4096
+FLOOR_REFLECTANCE = 0.2
 
 
 class FrameRenderer:
     """One GL context and MuJoCo render context for one model at one size."""
 
-    def __init__(self, model: mujoco.MjModel, width: int, height: int, samples: int = 0):
+    def __init__(self, model: mujoco.MjModel, width: int, height: int, samples: int = 0, shadows: bool = False):
         self.width, self.height = int(width), int(height)
         g = model.vis.global_
         g.offwidth = max(int(g.offwidth), self.width)
         g.offheight = max(int(g.offheight), self.height)
         model.vis.quality.offsamples = int(samples)
+        if shadows:
+            model.vis.quality.shadowsize = SHADOW_SIZE
+            model.light_castshadow[:] = 1
+            model.mat_reflectance[:] = np.maximum(model.mat_reflectance, FLOOR_REFLECTANCE)
         self.model = model
         self.backend, self._gl = make_context(self.width, self.height)
         self._con = mujoco.MjrContext(model, mujoco.mjtFontScale.mjFONTSCALE_100)
         mujoco.mjr_setBuffer(mujoco.mjtFramebuffer.mjFB_OFFSCREEN, self._con)
         self.scene = mujoco.MjvScene(model, maxgeom=max(1000, 4 * model.ngeom + 64))
         for flag in (mujoco.mjtRndFlag.mjRND_SHADOW, mujoco.mjtRndFlag.mjRND_REFLECTION):
-            self.scene.flags[flag] = 0
+            self.scene.flags[flag] = int(bool(shadows))
         self.opt = mujoco.MjvOption()
         self._pert = mujoco.MjvPerturb()
         self.cam = mujoco.MjvCamera()
@@ -46,6 +55,10 @@ class FrameRenderer:
         self._zero3 = np.zeros(3)
 
     def set_camera(self, name: str) -> None:
+        """A camera of the world by name; ``follow`` makes it a free camera that the caller aims each frame."""
+        if name == "follow":
+            self.cam.type = mujoco.mjtCamera.mjCAMERA_FREE
+            return
         cid = mujoco.mj_name2id(self.model, mujoco.mjtObj.mjOBJ_CAMERA, name)
         if cid < 0:
             raise ValueError(f"camera {name!r} not in the world (have {', '.join(CAMERAS)})")
@@ -76,6 +89,10 @@ class FrameRenderer:
         """A push drawn ending at the point it acts on, so the arrow shows where it comes from."""
         if float(force @ force) >= FORCE_MIN_N * FORCE_MIN_N:
             self.add_arrow(point - force * scale, point, PUSH_ARROW_RGBA, width=0.02)
+
+    def project(self, points: np.ndarray) -> np.ndarray:
+        """Pixel (x, y) of world points in the view of the last :meth:`update` (NaN behind the camera)."""
+        return project(self.scene, points, self.width, self.height)
 
     def render(self) -> np.ndarray:
         """The current scene as an (height, width, 3) uint8 array, top row first (a view of a reused buffer)."""

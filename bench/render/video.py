@@ -20,10 +20,13 @@ from pathlib import Path
 import numpy as np
 
 from bench.fileio import atomic_target
+from bench.render.camera import follow_path
+from bench.render.defaults import CAMERAS, DEFAULT_FPS, DEFAULT_SIZE, PREVIEW_FORMATS
 from bench.render.encode import Mp4Writer
 from bench.render.overlays import FrameInfo, OverlayPainter
+from bench.render.preview import PreviewCollector, preview_path
 from bench.render.replay import Recording, build_replay, load_recording, score_from_of
-from bench.render.scene import CAMERAS, FOOT_ARROW_RGBA, FORCE_SCALE_M_PER_N, FrameRenderer
+from bench.render.scene import FOOT_ARROW_RGBA, FORCE_SCALE_M_PER_N, FrameRenderer
 
 #: An event caption stays up at least this long in the video, s of video time (readable).
 CAPTION_MIN_VIDEO_S = 1.0
@@ -33,10 +36,10 @@ _UNSAFE = re.compile(r"[^A-Za-z0-9._-]+")
 
 @dataclass
 class VideoOptions:
-    camera: str = "track"
-    width: int = 640
-    height: int = 360
-    fps: float = 30.0
+    camera: str = "follow"
+    width: int = DEFAULT_SIZE[0]
+    height: int = DEFAULT_SIZE[1]
+    fps: float = DEFAULT_FPS
     slowmo: float = 1.0          # the video runs this many times slower than simulated time
     samples: int = 0             # multisample anti-aliasing (0 = off, fastest on a software renderer)
     hold_end_s: float = 1.5      # verdict banner at the end, s of video
@@ -45,6 +48,8 @@ class VideoOptions:
     clip_after_s: float = 1.0
     clip_slowmo: float = 4.0     # the clip runs at least this slow
     arrows: bool = True
+    preview: str = "gif"         # animated preview beside the main video: gif, webp or none
+    shadows: bool = False        # shadows and reflections: several times slower on a CPU renderer
 
     def problems(self) -> list[str]:
         out = []
@@ -56,6 +61,8 @@ class VideoOptions:
                 out.append(f"--{name}: {v} must be an even number of pixels from 16 to 4096")
         if not (1 <= self.fps <= 240):
             out.append(f"--fps: {self.fps:g} must be from 1 to 240")
+        if self.preview not in PREVIEW_FORMATS:
+            out.append(f"--preview: {self.preview!r} is not one of {', '.join(PREVIEW_FORMATS)}")
         if not (0.01 <= self.slowmo <= 100):
             out.append(f"--slowmo: {self.slowmo:g} must be from 0.01 to 100 (2 = half speed)")
         return out
@@ -116,12 +123,16 @@ class KeyMetric:
     averaged: bool          # the criterion is over an average: the live value is not itself the criterion
     score_from: float
 
-    def text(self, k: int, t: float) -> tuple[str, bool]:
+    def text(self, k: int, t: float) -> tuple[str, bool | None]:
+        """The live text and whether it is past its limit (None: no limit, so no judgement to colour)."""
         v = float(self.series[k])
         s = f"{self.label} {self.fmt.format(v * self.scale)} {self.unit}"
         if self.limit is not None:
             s += f"  ({'average ' if self.averaged else ''}limit {self.limit * self.scale:g})"
-        over = self.limit is not None and t >= self.score_from and abs(v) > self.limit
+        else:
+            s += "  (no limit)"
+        # Before scoring starts nothing is judged either: neutral, like a metric without a limit.
+        over = None if self.limit is None or t < self.score_from else bool(abs(v) > self.limit)
         if t < self.score_from:
             s += "  not scored yet"
         return s, over
@@ -203,7 +214,14 @@ class EpisodeView:
         self.painter = OverlayPainter(self.w, self.h, title or f"{rec.scenario_id}",
                                       f"controller {rec.controller}", opts.slowmo, legend)
         self.extra_caption: tuple[float, str] | None = None
-        self.renderer = FrameRenderer(self.replay.model, self.w, self.h, samples=opts.samples)   # last: owns GL
+        self.camera_path = None
+        if opts.camera == "follow":
+            self.camera_path = follow_path(A, self.replay.model, self.replay.data,
+                                           float(rec.trace.meta.get("nominal_height", 0.3) or 0.3))
+            self.replay.set_row(0)
+        self.row = 0
+        self.renderer = FrameRenderer(self.replay.model, self.w, self.h, samples=opts.samples,
+                                      shadows=opts.shadows)   # last: owns GL
         try:
             self.renderer.set_camera(opts.camera)
         except Exception:
@@ -222,7 +240,10 @@ class EpisodeView:
         rep, r, A = self.replay, self.renderer, self.A
         d = rep.set_row(int(k))
         rep.check()
+        if self.camera_path is not None:
+            self.camera_path.apply(r.cam, int(k))
         r.update(d)
+        self.row = int(k)
         if self.opts.arrows:
             r.add_forces(A["foot_pos"][k], A["foot_force"][k], FOOT_ARROW_RGBA)
             if "ext_force" in A:
@@ -236,8 +257,22 @@ class EpisodeView:
                          captions=self.captions(min(t, self.t_last), slowmo), note=note)
         return self.painter.paint(img, info)
 
+    def robot_box(self, k: int | None = None, margin_m: float = 0.12) -> tuple[float, float, float, float] | None:
+        """The robot's pixel box at row ``k`` (default: the last frame drawn): the box around the trunk and feet,
+        grown by ``margin_m``, projected with the view of the last frame. None when it is behind the camera."""
+        k = self.row if k is None else int(k)
+        pts = np.vstack([self.A["base_pos"][k][None, :], self.A["foot_pos"][k]])
+        lo, hi = pts.min(axis=0) - margin_m, pts.max(axis=0) + margin_m
+        corners = np.array([[x, y, z] for x in (lo[0], hi[0]) for y in (lo[1], hi[1]) for z in (lo[2], hi[2])])
+        px = self.renderer.project(corners)
+        if not np.all(np.isfinite(px)):
+            return None
+        x0, y0 = np.clip(px.min(axis=0), 0, [self.w, self.h])
+        x1, y1 = np.clip(px.max(axis=0), 0, [self.w, self.h])
+        return float(x0), float(y0), float(x1), float(y1)
+
     def banner(self, img):
-        return self.painter.banner(img, self.rec.status, self.rec.result.get("reason"))
+        return self.painter.banner(img, self.rec.status, self.rec.result.get("reason"), avoid=self.robot_box())
 
     def close(self) -> None:
         self.renderer.close()
@@ -264,7 +299,7 @@ def poster_time(result: dict, t0: float, t1: float) -> float:
 
 
 def _write_clip(view: EpisodeView, path: Path, t0: float, t1: float, slowmo: float, fps: float,
-                hold_s: float) -> Path:
+                hold_s: float, preview: PreviewCollector | None = None) -> Path:
     rows, times = frame_rows(view.t, t0, t1, fps, slowmo)
     t_poster = poster_time(view.rec.result, t0, t1)
     poster = None
@@ -274,8 +309,12 @@ def _write_clip(view: EpisodeView, path: Path, t0: float, t1: float, slowmo: flo
             img = view.frame(k, float(t), slowmo)
             if poster is None and t >= t_poster - 1e-9:
                 poster = img
+            if preview is not None:
+                preview.offer(float(t), img)
             wr.write(img)
         end = view.banner(img)
+        if preview is not None:
+            preview.end(end)
         for _ in range(int(round(hold_s * fps))):
             wr.write(end)
     save_poster(poster or img, path)
@@ -311,11 +350,17 @@ def render_result(result_dir: str | Path, out_dir: str | Path = "videos", opts: 
     view = EpisodeView(rec, opts, scenario, roots)
     made: list[Path] = []
     try:
+        collector = (PreviewCollector.for_result(rec.result, float(view.t[0]), view.t_last, opts.slowmo)
+                     if opts.preview != "none" else None)
         main = _write_clip(view, out_dir / f"{stem}.mp4", float(view.t[0]), view.t_last, opts.slowmo, opts.fps,
-                           opts.hold_end_s)
+                           opts.hold_end_s, collector)
         made.append(main)
+        extra = {}
+        if collector is not None:
+            prev = collector.write(preview_path(main, opts.preview), opts.preview)
+            extra["preview"] = os.path.relpath(prev.resolve(), Path(rec.dir).resolve())
         record_media(rec.dir, "main", main, camera=opts.camera, fps=opts.fps, slowmo=opts.slowmo,
-                     width=opts.width, height=opts.height)
+                     width=opts.width, height=opts.height, **extra)
         fv = first_violation(rec.result, view.t_last)
         if fv is not None and opts.violation_clip:
             tv, text = fv
