@@ -58,6 +58,8 @@ from bench.controllers.swing import SwingPlanner
 from bench.controllers.wrench import DesiredWrench
 
 CHANNELS = ("x", "y", "z", "roll", "pitch", "yaw")
+#: Standard gravity, m/s^2 (the value the robot models use; only for the l1_load_kg signal).
+GRAVITY_M_S2 = 9.81
 
 
 class ForceQPController:
@@ -187,6 +189,9 @@ class ForceQPController:
             self.est = LegImuEstimator(robot, self.dt, **(p["estimator"] or {}))
             self.est.reset()
             self._est_contact = np.ones(nf, dtype=bool)
+        # Per-tick signals the bench records (trace.npz ``signal_*``, plots, report): 1 when this tick's
+        # force QP solved, 0 when it fell back to the previous forces.
+        self.signals = {"qp_ok": 1.0}
         self._reset_extra()
 
     def _reset_extra(self) -> None:
@@ -281,6 +286,7 @@ class ForceQPController:
         w = wr.compute_wrench(rot)
         np.subtract(kin.foot_pos, kin.com, out=self.r)
         f = self.qp.solve(self.r, w, gait.load_list).tolist()
+        self.signals["qp_ok"] = 1.0 if self.qp.last_ok else 0.0
 
         # per-foot Cartesian force on the foot: -f for stance, swing PD otherwise
         sw = self.swing
@@ -411,6 +417,14 @@ class ForceQPL1Controller(ForceQPController):
                              u_max=umax)
         self._l1_chans = np.asarray(chans, dtype=np.int64)
         self._l1_all = chans == list(range(len(CHANNELS)))
+        # Signals: the adaptive accelerations of the chosen channels (m/s^2 or rad/s^2, the L1 input u),
+        # and, when z is adapted, the load it stands for: m * u_z / g, the extra mass whose weight the
+        # vertical adaptive force carries (an estimate: it also absorbs any other vertical model error).
+        self.signals["l1_u"] = self.l1.u
+        self._mass_kg_per_g = float(self.robot.mass_kg) / GRAVITY_M_S2
+        self._l1_z = chans.index(CHANNELS.index("z")) if CHANNELS.index("z") in chans else None
+        if self._l1_z is not None:
+            self.signals["l1_load_kg"] = 0.0
 
     @staticmethod
     def _per_channel(value, chans) -> np.ndarray:
@@ -426,6 +440,8 @@ class ForceQPL1Controller(ForceQPController):
 
     def _adapt(self) -> None:
         u = self.l1.update(self.wrench.error_state)
+        if self._l1_z is not None:
+            self.signals["l1_load_kg"] = self._mass_kg_per_g * float(u[self._l1_z])
         if self._l1_all:
             self.wrench.a_ff[:] = u
         else:

@@ -55,10 +55,12 @@ import mujoco
 import numpy as np
 
 from bench.controllers.base import Observation
+from bench.controllers.seeding import reset_kwargs
 from bench.faults import FaultContext
 from bench.gaits import GAIT_HINT_NAMES, gait_code
 from bench.sim.contacts import CONTACT_DIST_M, ContactTable
 from bench.sim.interrupts import UserInterrupts, raised_reason
+from bench.sim.signals import SignalError, SignalRecorder
 from bench.sim.events import Event, compile_forces, compile_masses, fault_events
 from bench.sim.faults import compile_faults
 from bench.sim.sensing import compile_sensing, sensing_info
@@ -486,7 +488,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     watchdog.call_limit_s = math.inf
     c0 = watchdog.call_start = time.perf_counter()
     try:
-        controller.reset(robot, ctrl_dt)
+        controller.reset(robot, ctrl_dt, **reset_kwargs(controller, seed))   # + seed/rng if it takes them
         watchdog.call_start = 0.0
     except _ControllerHung as hung:
         watchdog.call_start = 0.0
@@ -507,6 +509,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     watchdog.call_limit_s = watchdog.tick_limit_s
     tick_limit_s = watchdog.tick_limit_s
     deadline = watchdog.deadline
+    signals = SignalRecorder.attach(controller, n_ticks)   # None (nothing per tick) unless it logs signals
 
     def apply_forces(step: int) -> None:
         d.xfrc_applied[trunk, :] = 0.0
@@ -637,6 +640,17 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
             if not math.isfinite(sum(tau.tolist())) and not np.isfinite(tau).all():
                 status, reason = "error", f"controller returned non-finite torques at tick {k} (t={t:.3f} s)"
                 break
+            if signals is not None:
+                try:
+                    signals.record(k)
+                except SignalError as exc:
+                    status, reason = "error", f"{exc} (t={t:.3f} s)"
+                    break
+                except BaseException as exc:  # noqa: BLE001 - its own signals property or mapping raised
+                    if user.by_user(exc):
+                        raise
+                    status, reason = "error", raised_reason(exc, f"giving its signals at tick {k} (t={t:.3f} s)")
+                    break
 
             # Faults on the command (latency), the limits, faults on the applied torque (limp joints),
             # then hold until the next tick.
@@ -704,6 +718,8 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
 
     n = k
     trace.truncate(n)
+    if signals is not None:
+        signals.into(trace.arrays, n)
     if n:
         A = trace.arrays
         _derive_rows(A, n, ctrl_dt, world, m, R_qvel[:n], R_xipos[:n], cmd_rows[:n])

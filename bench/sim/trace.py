@@ -51,6 +51,8 @@ KEY_DOCS = {
     "payload_mass": "(N, P) mass of each payload at that tick, kg (0 while not attached)",
     "gait_hint": "(N,) int8 gait hint of the tick's command: 0 none, 1 stand, 2 trot, 3 pace, 4 bound, 5 walk "
                  "(names in `meta_gait_hint_names`); only when a command of the scenario sets `gait:`",
+    "signal_<name>": "(N, ...) a signal the controller logged each tick (its `signals` mapping), float64, NaN "
+                     "where it was missing; left out of the trace digest",
 }
 
 
