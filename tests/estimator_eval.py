@@ -112,8 +112,12 @@ def scenario_from(path: str | Path, duration_s: float | None = None, extra_yaml:
     return load_scenarios([str(out)], roots=[ROOT, Path(tmp_dir)])[0]
 
 
-def run_with_estimator(scenario, controller: str = "force-qp-l1", **estimator_params):
-    """One episode of ``scenario`` driven by ``controller``, with the estimator probed alongside."""
+def run_with_estimator(scenario, controller: str = "force-qp-l1-privileged", **estimator_params):
+    """One episode of ``scenario`` driven by ``controller``, with the estimator probed alongside.
+
+    The default driver reads the true trunk state, so the trajectory does not depend on the estimate
+    under test (the default ``force-qp-l1`` runs an estimator of its own).
+    """
     world = build_world(scenario)
     _, inner = make(controller)
     n = int(round(float(scenario.duration) * float(scenario.control_rate)))

@@ -84,3 +84,124 @@ def test_time_to_touchdown():
             assert g.time_to_touchdown_s(i) == 0.0
         else:
             assert 0 < g.time_to_touchdown_s(i) <= g.swing_duration_s
+
+
+# ------------------------------------------------------------------ gaits other than the trot
+
+from bench.controllers.gait import GAIT_OFFSETS, GAIT_TUNING  # noqa: E402
+
+FL, FR, RL, RR = range(4)
+
+
+def _hinted(gait, seconds=3.0):
+    g = GaitScheduler(period_s=0.32, duty=0.6, load_ramp=0.05)
+    g.request(gait)
+    rows = _run(g, seconds)
+    return g, np.array([r[1] for r in rows]), np.array([r[3] for r in rows])
+
+
+@pytest.mark.parametrize("gait, together, apart", [
+    ("pace", [(FL, RL), (FR, RR)], [(FL, FR), (FL, RR)]),
+    ("bound", [(FL, FR), (RL, RR)], [(FL, RL), (FL, RR)]),
+])
+def test_pace_and_bound_pair_the_right_legs(gait, together, apart):
+    g, contact, _ = _hinted(gait)
+    spec = GAIT_TUNING[gait]
+    assert (g.gait, g.period_s, g.duty) == (gait, spec["period_s"], spec["duty"])
+    for i, j in together:
+        np.testing.assert_array_equal(contact[:, i], contact[:, j])
+    for i, j in apart:
+        # half a cycle apart: the states agree only while both stand, 2 d - 1 of the time
+        assert np.mean(contact[:, i] == contact[:, j]) == pytest.approx(2 * g.duty - 1, abs=0.03)
+    assert contact.mean(axis=0) == pytest.approx([g.duty] * 4, abs=0.02)
+    assert contact.sum(axis=1).min() == 2
+
+
+def test_walk_lifts_one_leg_at_a_time_in_order_rl_fl_rr_fr():
+    g, contact, load = _hinted("walk", seconds=4.0)
+    assert g.duty >= 0.75
+    assert (~contact).sum(axis=1).max() == 1            # never two feet off
+    assert contact.mean(axis=0) == pytest.approx([g.duty] * 4, abs=0.02)
+    lifts = [(k, i) for k in range(1, len(contact)) for i in range(4) if contact[k - 1, i] and not contact[k, i]]
+    order = [i for _, i in lifts]
+    cycle = [RL, FL, RR, FR]
+    assert len(order) >= 8
+    assert all(cycle[(cycle.index(a) + 1) % 4] == b for a, b in zip(order, order[1:]))   # a rotation of the cycle
+    gaps = np.diff([k for k, _ in lifts]) * DT
+    assert gaps == pytest.approx(np.full(len(gaps), g.period_s / 4), abs=1.5 * DT)
+    # all four feet fully loaded between two swings: the walk has its stand points
+    assert (load.min(axis=1) == 1.0).any()
+
+
+def test_every_tuned_gait_has_full_load_stand_points():
+    """The stand-point condition of the module docstring holds for every tuned gait."""
+    for gait, spec in GAIT_TUNING.items():
+        gap = 0.25 if gait == "walk" else 0.5
+        assert spec["duty"] - (1 - gap) >= 2 * spec["load_ramp"] - 1e-12, gait
+        assert len(GAIT_OFFSETS[gait]) == 4
+
+
+def _switch_rows(script):
+    """Run ``[(seconds, run, gait or None), ...]``; return per-tick rows and the ticks where the gait changed."""
+    g = GaitScheduler(period_s=0.32, duty=0.6, load_ramp=0.05, min_run_s=0.3)
+    rows, gaits = [], []
+    for seconds, run, gait in script:
+        if gait is not None:
+            g.request(gait)
+        for _ in range(int(round(seconds / DT))):
+            g.update(DT, run)
+            rows.append((g.contact.copy(), g.load.copy(), g.running, g.phase.copy()))
+            gaits.append(g.gait)
+    switches = [k for k in range(1, len(gaits)) if gaits[k] != gaits[k - 1]]
+    return g, rows, gaits, switches
+
+
+def test_gait_changes_happen_with_every_foot_down_and_fully_loaded():
+    g, rows, gaits, switches = _switch_rows([
+        (0.3, False, None), (1.0, True, "trot"), (1.0, True, "bound"), (1.0, True, "pace"),
+        (1.5, True, "walk"), (1.0, True, "trot"), (1.0, False, "stand" if False else None)])
+    assert [gaits[k] for k in switches] == ["bound", "pace", "walk", "trot"]
+    load = np.array([r[1] for r in rows])
+    contact = np.array([r[0] for r in rows])
+    for k in switches:
+        # at the switch tick, and the tick before it in the old gait, every foot stands with load 1
+        assert contact[k].all() and (load[k] == 1.0).all()
+        assert contact[k - 1].all() and (load[k - 1] >= 1.0 - 1e-9).all()
+        # it keeps stepping: the switch does not stop the gait
+        assert rows[k + 1][2]
+    # no load jumps anywhere (load ramps of the shortest tuned gait: 0.05 * 0.16 s = 8 ms over a smoothstep)
+    shortest = min(0.05 * 0.32, *(v["load_ramp"] * v["period_s"] for v in GAIT_TUNING.values()))
+    assert np.abs(np.diff(load, axis=0)).max() <= 1.5 * DT / shortest + 1e-9
+    # contacts never jump from swing to a different gait's swing at the switch: the first lift-off after a
+    # switch is preceded by a load ramp-down of that foot
+    for k in switches:
+        nxt = next(j for j in range(k, len(contact)) if not contact[j].all())
+        lifted = ~contact[nxt]
+        assert (load[nxt - 1][lifted] < 0.5).all()
+    assert not g.running and contact[-1].all()
+
+
+def test_a_switch_picks_the_stand_point_closest_in_stance_progress():
+    """Trot -> walk: the first walk step is taken by a leg of the trot pair that has stood longest."""
+    g, rows, gaits, switches = _switch_rows([(0.6, True, "trot"), (1.0, True, "walk")])
+    k = switches[0]
+    contact = np.array([r[0] for r in rows])
+    landings = [j for j in range(1, k) if (~contact[j - 1] & contact[j]).any()]
+    landed_last = set(np.flatnonzero(~contact[landings[-1] - 1] & contact[landings[-1]]))
+    nxt = next(j for j in range(k, len(contact)) if not contact[j].all())
+    first_lifted = set(np.flatnonzero(~contact[nxt]))
+    assert len(first_lifted) == 1 and first_lifted.isdisjoint(landed_last)
+    # and the stance progress (phase / duty) of every leg moved as little as the walk's stand points allow
+    before = rows[k - 1][3] / 0.6
+    after = rows[k][3] / g.duty
+    assert np.abs(np.minimum(after, 1) - np.minimum(before, 1)).max() < 0.35
+
+
+def test_standing_scheduler_takes_a_new_gait_at_once_and_an_unknown_one_is_refused():
+    g = GaitScheduler(period_s=0.32, duty=0.6)
+    g.request("bound")
+    assert g.gait == "bound" and not g.running and g.contact.all() and (g.load == 1).all()
+    g.request("bound")   # the same gait again: nothing pending
+    assert g.switches == 1
+    with pytest.raises(ValueError, match="unknown gait 'gallop'"):
+        g.request("gallop")

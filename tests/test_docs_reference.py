@@ -97,11 +97,11 @@ def test_every_result_key_has_a_documented_meaning():
     from bench.execute.trials import TRIAL_ENTRY_DOCS, group_summaries, TrialGroup
     from bench.report.record import KEY_DOCS, RunRecord
     from bench.report.results import SUMMARY_DOCS, write_summary
-    from bench.sim.trace import CONTRACT_KEYS, EXTRA_KEYS
+    from bench.sim.trace import CONTRACT_KEYS, EXTRA_KEYS, OPTIONAL_KEYS
     from bench.sim.trace import KEY_DOCS as TRACE_DOCS
 
     assert {f.name for f in dataclasses.fields(RunRecord)} - {"extra"} <= set(KEY_DOCS)
-    assert set(CONTRACT_KEYS + EXTRA_KEYS) <= set(TRACE_DOCS)
+    assert set(CONTRACT_KEYS + EXTRA_KEYS + OPTIONAL_KEYS) <= set(TRACE_DOCS)
     result = {"scenario": "s[trial=0]", "status": "passed", "reason": None}
     entries = group_summaries([TrialGroup("s", "s.yaml", 1, None, [0])], [_record("s[trial=0]")])
     assert set(entries[0]) <= set(TRIAL_ENTRY_DOCS), set(entries[0]) - set(TRIAL_ENTRY_DOCS)

@@ -2,7 +2,8 @@
 and against the simulator's truth.
 
 Math checks use synthetic observations of the bundled robot's nominal model. Episode checks run
-short versions of bundled scenarios with the reference stack ``force-qp-l1`` driving, feed every
+short versions of bundled scenarios with the reference stack ``force-qp-l1-privileged`` driving (on the
+true state, so the trajectory does not depend on the estimate under test), feed every
 observation (after the bench's sensor faults) to the estimator, and compare with the trunk state
 the Trace recorded at the same instant (see ``tests/estimator_eval.py``).
 
@@ -278,3 +279,31 @@ faults:
     growth_before = (perr[before][-1] - perr[before][0]) / 1.0
     growth_after = (perr[after][-1] - perr[after][0]) / (t[after][-1] - t[after][0])
     assert growth_after > 2.0 * max(growth_before, 0.0)
+
+
+def test_orientation_bias_leaks_gravity_in_proportion(trot_runs, tmp_path):
+    """The bench's sensor_noise fault on imu_orientation with a bias b (rad, on each axis of the rotation
+    vector) tilts the orientation the filter uses by delta = (b, b, b). Rotating the specific force with
+    that error leaks delta x g (g = 9.81 m/s^2 up) into the world acceleration the filter integrates
+    (first order of R(delta) = I + [delta]x), about b g = 0.2 m/s^2 per axis at b = 0.02: the velocity
+    error must point along (+1, -1) in x, y, grow in proportion to b, and show in the consistency figure."""
+    clean = trot_runs["clean"]
+    predicted = np.cross([1.0, 1.0, 1.0], [0.0, 0.0, 9.81])[:2]
+    predicted /= np.linalg.norm(predicted)
+    rms = {}
+    for b in (0.02, 0.04):
+        sc = scenario_from("scenarios/locomotion/forward.yaml", TROT_S, EARLY_START + f"""
+faults:
+  - sensor_noise: {{sensor: imu_orientation, std: 0.0, bias: {b}}}
+""", tmp_path)
+        ep, probe = run_with_estimator(sc)
+        e = estimator_errors(ep.trace, probe, ep.status)
+        assert e.status == "completed"
+        n = min(len(ep.trace), probe.k)
+        mean_err = (probe.vel[:n] - ep.trace["base_linvel"][:n])[n // 3:, :2].mean(axis=0)
+        cos = float(mean_err @ predicted / np.linalg.norm(mean_err))
+        assert cos > math.cos(math.radians(20)), (b, mean_err)
+        assert e.nis_median > clean.nis_median
+        rms[b] = e.vel_rmse_mps
+    assert clean.vel_rmse_mps < rms[0.02] < rms[0.04]
+    assert 1.6 < rms[0.04] / rms[0.02] < 2.4, rms

@@ -3,9 +3,12 @@
 ``tests/golden/suite_digests.json`` holds, for each reference controller, the
 ``trace_sha256`` and status of every episode of the bundled suite. A refactor
 of the run path, the record, the executors or the loop must leave them
-unchanged. This test runs the episodes that take about a second or less (a
-subset that covers every folder of the suite: basics, disturbances, faults,
-payloads, terrain and trials); ``python tests/golden/check_suite.py`` checks all.
+unchanged. This test runs the faster half of the episodes by the wall time
+recorded in the file (a subset that covers every folder of the suite: basics,
+disturbances, faults, payloads, terrain and trials); ranked, not cut at a fixed
+number of seconds, because the file may be written on a loaded machine where
+every episode takes several times longer; ``python tests/golden/check_suite.py``
+checks all.
 """
 
 from __future__ import annotations
@@ -19,18 +22,20 @@ import pytest
 from tests.golden.check_suite import GOLDEN, differences, run_suite
 
 GOLDEN_DATA = json.loads(GOLDEN.read_text())
-#: Episodes whose recorded wall time was at most this are in the test (a fast, broad subset).
-FAST_S = {"force-qp-l1": 1.2, "force-qp": 0.9}
+#: The share of each controller's episodes in the test: the fastest by recorded wall time.
+FAST_FRACTION = 0.5
+CONTROLLERS = ("force-qp-l1", "force-qp")
 CHUNKS = 3
 
 
 def _chunks(controller: str) -> list[list[str]]:
-    ids = sorted(sid for sid, e in GOLDEN_DATA["controllers"][controller].items()
-                 if e["wall_time_s"] <= FAST_S[controller])
+    episodes = GOLDEN_DATA["controllers"][controller]
+    ranked = sorted(episodes, key=lambda sid: (episodes[sid]["wall_time_s"], sid))
+    ids = sorted(ranked[:int(len(ranked) * FAST_FRACTION)])
     return [ids[i::CHUNKS] for i in range(CHUNKS)]
 
 
-CASES = [(c, i, ids) for c in FAST_S for i, ids in enumerate(_chunks(c))]
+CASES = [(c, i, ids) for c in CONTROLLERS for i, ids in enumerate(_chunks(c))]
 
 
 @pytest.mark.skipif(GOLDEN_DATA["mujoco_version"] != mujoco.__version__,

@@ -239,15 +239,21 @@ criteria:
 """
 
 
-def test_trials_scenario_is_one_item_judged_like_bench_run(project):
-    """`trials:` gives one item that runs every trial and decides on the Wilson bound, as `bench run` does."""
+def test_trials_scenario_is_one_item_per_trial_and_a_verdict_judged_like_bench_run(project):
+    """`trials:` gives an item per trial (xdist can spread them) and a verdict item, run last, that decides
+    on the Wilson bound as `bench run` does."""
     (project.path / "scen" / "tri.yaml").write_text(TRIALS.format(rate=0.5))
     res = project.runpytest("--co", "-q", "-m", "trials")
-    assert [x for x in res.outlines if "::" in x] == ["scen/tri.yaml::tri"]
+    assert [x for x in res.outlines if "::" in x] == [f"scen/tri.yaml::tri[trial={k}]" for k in range(6)] + [
+        "scen/tri.yaml::tri"]
 
     res = project.runpytest("-q", "-m", "trials", "--junitxml=junit.xml")
-    res.assert_outcomes(failed=1, deselected=4)
     text = res.stdout.str()
+    # the trial items pass (their trial ran); the terminal counts the failed trials apart; the verdict fails
+    outcomes = res.parseoutcomes()
+    assert outcomes["failed"] == 1 and outcomes["deselected"] == 4
+    last = res.outlines[-1]
+    assert res.ret == 1
     assert "Traceback" not in text
     # the same trials through the command line
     assert bench_main(["run", str(project.path / "scen" / "tri.yaml"), "--controller", "joint-pd", "--workers", "1",
@@ -256,6 +262,7 @@ def test_trials_scenario_is_one_item_judged_like_bench_run(project):
     plug = json.loads((project.path / "out" / "summary.json").read_text())
     (ct,), (pt,) = cli["trials"], plug["trials"]
     assert ct["trials"] == 6 and 0 < ct["passed"] < 6 and ct["verdict"] == "failed"   # the fixture is a real mix
+    assert f"{ct['passed']} trial passed, {6 - ct['passed']} trial failed" in last
     for key in ("trials", "passed", "rate", "interval", "required", "verdict", "failing", "trials_needed"):
         assert pt[key] == ct[key], key
     assert [r["result"] for r in plug["results"]] == [f"tri.trial-{k}/result.json" for k in range(6)]
@@ -271,12 +278,20 @@ def test_trials_scenario_is_one_item_judged_like_bench_run(project):
     first = ct["failing"][0]
     assert f"{first}: failed: height_error_max" in text
     assert f"re-run one trial alone: bench run scen/tri.yaml --only '{first}'" in text
-    case = next(c for c in ET.parse(project.path / "junit.xml").iter("testcase") if c.get("name") == "tri")
-    props = [(p.get("name"), p.get("value")) for p in case.iter("property")]
+    cases = {c.get("name"): c for c in ET.parse(project.path / "junit.xml").iter("testcase")}
+    props = [(p.get("name"), p.get("value")) for p in cases["tri"].iter("property")]
     d = dict(props)
     assert d["bench.trials.verdict"] == "failed" and d["bench.trials.passed"] == f"{ct['passed']}/6"
     assert float(d["bench.trials.interval_low"]) == pytest.approx(lo)
-    assert [v for n, v in props if n == "bench.scenario"] == [f"tri[trial={k}]" for k in range(6)]
+    for k in range(6):   # each trial's own item carries its run
+        trial = dict((p.get("name"), p.get("value")) for p in cases[f"tri[trial={k}]"].iter("property"))
+        assert trial["bench.scenario"] == f"tri[trial={k}]" and cases[f"tri[trial={k}]"].find("failure") is None
+    # deselected trial items: the verdict item runs those trials itself and reaches the same verdict
+    res = project.runpytest("-q", "-m", "trials", "--deselect", "scen/tri.yaml::tri[trial=1]",
+                            "--deselect", "scen/tri.yaml::tri[trial=4]", "--bench-out", "out2")
+    assert res.parseoutcomes()["failed"] == 1
+    again = json.loads((project.path / "out2" / "summary.json").read_text())["trials"][0]
+    assert again["passed"] == ct["passed"] and again["verdict"] == "failed"
 
     # A lower required rate that the same trials meet: the item passes.
     (project.path / "scen" / "tri.yaml").write_text(TRIALS.format(rate=round(lo - 0.05, 2)))

@@ -32,6 +32,8 @@ def _full() -> dict:
                fingerprint_parts={"scenario": "abc", "robot_mjcf": "def"}, result_uid="0" * 32,
                deciding={"name": "height_error_max", "value": 0.02, "limit": 0.01, "margin": -1.0,
                          "first_violation_s": 0.4, "passed": False},
+               controller_params={"kp_pos": [40, 40, 90], "solver": "daqp"}, controller_name="force-qp",
+               controller_signals=["l1_load_kg", "qp_ok"],
                a_newer_key={"kept": [1, 2]})
     new["criteria"] = [dict(c, margin=-1.0) if c["limit"] else dict(c) for c in OLD["criteria"]]
     return new

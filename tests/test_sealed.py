@@ -154,7 +154,7 @@ def test_the_runner_refreshes_every_observation_field_into_the_controllers_copy(
     # (height_scan, foot_force and joint_torque: filled by bench.sim.sensing, checked in test_sensing.py)
     assert {f.name for f in dataclasses.fields(Observation)} == {
         "t", "imu_quat", "imu_gyro", "imu_accel", "joint_pos", "joint_vel", "foot_contact", "privileged",
-        "height_scan", "foot_force", "joint_torque"}
+        "height_scan", "foot_force", "joint_torque", "gait_hint"}
 
 
 def test_in_process_controller_can_still_reach_the_simulation_known_limit(stand):

@@ -20,6 +20,7 @@ import pytest
 from bench.controllers.registry import make
 from bench.robot.model import NominalRobot
 from bench.scenario import load_scenarios
+from bench.sim import contacts as contacts_module
 from bench.sim.contacts import CONTACT_DIST_M, ContactTable
 from bench.world.build import build_world
 
@@ -79,11 +80,16 @@ def _world(tmp_path, text):
 ROUGH = "terrain:\n  - rough: {start: -1.0, length: 3.0, height: 0.05, wavelength: 0.3}\n"
 
 
-@pytest.mark.parametrize("controller,steps,terrain", [("joint-pd", 600, ""), ("force-qp", 1100, ""),
-                                                      ("zero", 1500, ""), ("force-qp", 600, ROUGH)],
-                         ids=["stand", "trot", "lying", "rough"])
-def test_scan_matches_the_direct_formulation_bit_for_bit(tmp_path, controller, steps, terrain):
+@pytest.mark.parametrize("controller,steps,terrain,max_plans", [
+    ("joint-pd", 600, "", None), ("force-qp", 1100, "", None), ("zero", 1500, "", None),
+    ("force-qp", 600, ROUGH, None), ("force-qp", 600, ROUGH, 2)],
+    ids=["stand", "trot", "lying", "rough", "rough-cache-of-2"])
+def test_scan_matches_the_direct_formulation_bit_for_bit(tmp_path, monkeypatch, controller, steps, terrain,
+                                                         max_plans):
     # On rough ground the contact frames tilt about both axes, so all nine products of the rotation count.
+    # With a cache of two classified geom-pair sequences it is cleared over and over on the way.
+    if max_plans:
+        monkeypatch.setattr(contacts_module, "MAX_PLANS", max_plans)
     sc, world = _world(tmp_path, "name: scan\nduration: 3\ncommands: [{at: 0.0}, {at: 0.5, vx: 0.4}]\n" + terrain)
     m = world.model
     d = mujoco.MjData(m)
@@ -117,6 +123,10 @@ def test_scan_matches_the_direct_formulation_bit_for_bit(tmp_path, controller, s
             obs.privileged.base_linvel[:] = d.qvel[world.root_dof_adr:world.root_dof_adr + 3]
             cmd = np.array([0.4 if k * 0.001 >= 0.5 else 0.0, 0.0, 0.0])
             d.ctrl[world.actuator_ids] = np.clip(ctrl.step(obs, cmd), -robot.torque_limits, robot.torque_limits)
+    # the classification of a recurring contact set is kept, and the cache stays within its bound
+    assert len(table._plans) <= (max_plans or contacts_module.MAX_PLANS)
+    if controller == "joint-pd":
+        assert len(table._plans) <= 3, "standing still keeps its contacts: their classification is reused"
     # each case reached the situation it is here for
     if controller == "joint-pd":
         assert seen["four"]

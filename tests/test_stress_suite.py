@@ -2,18 +2,21 @@
 
 from __future__ import annotations
 
+import math
+
 from pathlib import Path
 
 import pytest
 
 from bench.cli import main
+from bench.gaits import GAIT_HINTS
 from bench.scenario import DISTURBANCE_KINDS, FAULT_KINDS, TERRAIN_KINDS, load_scenarios
 from bench.scenario.schema import SENSORS, STAIR_PRESETS
 from bench.scenario.yamlload import load_yaml
 
 REPO = Path(__file__).resolve().parents[1]
 SCENARIOS = REPO / "scenarios"
-FOLDERS = ("basics", "payload", "locomotion", "terrain", "disturbance", "faults", "demo")
+FOLDERS = ("basics", "payload", "locomotion", "terrain", "disturbance", "faults", "demo", "gaits")
 
 
 @pytest.fixture(scope="module")
@@ -47,7 +50,7 @@ def test_every_file_says_what_it_stresses():
 
 def test_every_primitive_appears_in_the_suite(suite):
     seen = {"terrain": set(), "disturbance": set(), "fault": set(), "payload": set(), "schedule": set(),
-            "preset": set(), "sensor": set(), "direction": set()}
+            "preset": set(), "sensor": set(), "direction": set(), "gait": set()}
     for sc in suite:
         for piece in sc.terrain:
             seen["terrain"].add(piece.kind)
@@ -57,6 +60,7 @@ def test_every_primitive_appears_in_the_suite(suite):
                     seen["preset"].add(piece.preset)
         for d in sc.disturbances:
             seen["disturbance"].add(d.kind)
+        seen["gait"].update(c.gait for c in sc.commands if c.gait is not None)
         for f in sc.faults:
             seen["fault"].add(f.kind)
             if f.kind == "sensor_noise":
@@ -74,6 +78,7 @@ def test_every_primitive_appears_in_the_suite(suite):
     assert seen["preset"] == set(STAIR_PRESETS)
     assert seen["direction"] == {"up", "down"}
     assert seen["sensor"] == set(SENSORS)
+    assert seen["gait"] == set(GAIT_HINTS)
     # Composition is used too: a file that extends another, and matrices that expand into variants.
     assert any(sc.variant for sc in suite)
     assert any("extends" in load_yaml(p).data for p in SCENARIOS.rglob("*.yaml"))
@@ -87,7 +92,16 @@ def test_the_orchard_sprayer_demo_has_what_it_promises(suite):
     assert {"slope", "stairs"} <= kinds
     liquid = next(p for p in demo.payloads if p.type == "shifting")
     assert liquid.drain is not None and liquid.drain.final_mass < liquid.mass / 2
-    assert {d.kind for d in demo.disturbances} == {"push_train", "steady_force"}
+    assert {d.kind for d in demo.disturbances} == {"push", "steady_force"}
+    # gusts come from the crosswind's side and stay realistic: drag grows with the square of the wind
+    # speed, so a gust of at most 1.5 times the mean speed adds at most 1.5^2 - 1 = 1.25 times the
+    # steady force (gust factor: common practice, no source)
+    wind = next(d for d in demo.disturbances if d.kind == "steady_force")
+    gusts = [d for d in demo.disturbances if d.kind == "push"]
+    assert len(gusts) >= 3
+    for g in gusts:
+        assert g.force[1] * wind.force[1] > 0
+        assert math.hypot(*g.force) <= 1.25 * math.hypot(*wind.force)
 
 
 def test_list_shows_the_bundled_suite(suite, capsys):

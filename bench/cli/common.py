@@ -41,3 +41,22 @@ def add_privileged_option(p) -> None:
                    help="set sensing.privileged to false in every scenario for this run: obs.privileged is None, "
                         "so a controller shows it never needs the true trunk state (the scenarios' content "
                         "hashes change with it, so results of such a run are told apart)")
+
+
+def add_controller_param_option(p) -> None:
+    """``--controller-param KEY=VALUE`` (repeatable): keyword arguments for the controller's factory."""
+    p.add_argument("--controller-param", action="append", default=[], metavar="KEY=VALUE", dest="controller_param",
+                   help="keyword argument for the controller's constructor, the value read as YAML "
+                        "(kp_pos=[40,40,100], solver=daqp, leg_bias_ff=false); repeatable; an unknown key is "
+                        "invalid input (exit 2). Recorded in result.json and its fingerprint")
+
+
+def controller_params_from(args) -> dict:
+    """The parsed ``--controller-param`` values; raises InvalidInput on a malformed one."""
+    from bench.controllers.params import ControllerParamError, parse_params
+    from bench.run.errors import InvalidInput
+
+    try:
+        return parse_params(getattr(args, "controller_param", None) or [])
+    except ControllerParamError as exc:
+        raise InvalidInput(str(exc)) from None

@@ -14,7 +14,8 @@ import sys
 import time
 from pathlib import Path
 
-from bench.cli.common import add_privileged_option, add_robot_option, load_or_report
+from bench.cli.common import (add_controller_param_option, add_privileged_option, add_robot_option,
+                               controller_params_from, load_or_report)
 from bench.cli.run import add_execution_options, executor_options
 
 ORDER = 36
@@ -48,6 +49,7 @@ def register(sub) -> None:
                    help="extra folder that scenarios may reference files in (repeatable)")
     add_robot_option(p)
     add_privileged_option(p)
+    add_controller_param_option(p)
     add_execution_options(p)
     p.set_defaults(func=run)
 
@@ -70,7 +72,7 @@ def run(args) -> int:
     from bench.cli import UsageError
     from bench.errors import ScenarioErrors
     from bench.run.execute import open_executor
-    from bench.run.plan import check_controller
+    from bench.run.plan import check_controller, check_controller_params
     from bench.search.envelope import map_envelope, write_map
     from bench.search.envelope_plot import plot_envelope
     from bench.search.scenario import PlanePredicate
@@ -98,11 +100,14 @@ def run(args) -> int:
         raise UsageError(f"{args.scenario} defines {len(scenarios)} scenarios; map one without a matrix")
     sc = scenarios[0]
     check_controller(args.controller)
+    params = controller_params_from(args)
+    check_controller_params(args.controller, params)
     out = Path(args.out)
     executor = open_executor(args.workers, args.cluster, **executor_options(args))
     t0 = time.perf_counter()
     try:
         pred = PlanePredicate(sc, x.path, y.path, vector=bool(args.vector), controller=args.controller,
+                              controller_params=params,
                               executor=executor,
                               limits=EpisodeLimits(), trials=args.trials, out_dir=out / "episodes")
         pred.check_plane((x.lo, x.hi), (y.lo, y.hi))

@@ -16,7 +16,8 @@ import sys
 import time
 from pathlib import Path
 
-from bench.cli.common import add_privileged_option, add_robot_option, load_or_report
+from bench.cli.common import (add_controller_param_option, add_privileged_option, add_robot_option,
+                               controller_params_from, load_or_report)
 from bench.cli.run import add_execution_options, executor_options
 from bench.run.plan import DEFAULT_CONTROLLER
 
@@ -58,6 +59,7 @@ def register(sub) -> None:
                    help="extra folder that the scenario may reference files in (repeatable)")
     add_robot_option(p)
     add_privileged_option(p)
+    add_controller_param_option(p)
     add_execution_options(p)
     p.set_defaults(func=run)
 
@@ -90,7 +92,7 @@ def run(args) -> int:
     from bench.errors import ScenarioErrors
     from bench.report.results import write_json
     from bench.run.execute import open_executor
-    from bench.run.plan import check_controller
+    from bench.run.plan import check_controller, check_controller_params
     from bench.search.limit import find_limit
     from bench.search.plot import plot_curve
     from bench.search.scenario import ScenarioPredicate
@@ -109,11 +111,14 @@ def run(args) -> int:
         return 2
     sc = _pick(scenarios, args.only, args.scenario)
     check_controller(args.controller)          # invalid input: exit 2 before anything runs
+    params = controller_params_from(args)
+    check_controller_params(args.controller, params)
     executor = open_executor(args.workers, args.cluster, **executor_options(args))
     out = Path(args.out)
     t0 = time.perf_counter()
     try:
-        pred = ScenarioPredicate(sc, args.vary, controller=args.controller, executor=executor,
+        pred = ScenarioPredicate(sc, args.vary, controller=args.controller, controller_params=params,
+                                 executor=executor,
                                  limits=EpisodeLimits(), trials=args.trials, required=args.pass_rate,
                                  seed=args.seed, out_dir=out / "episodes")
         pred.check_range(lo, hi)

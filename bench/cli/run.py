@@ -5,7 +5,8 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from bench.cli.common import add_privileged_option, add_robot_option, load_or_report
+from bench.cli.common import (add_controller_param_option, add_privileged_option, add_robot_option,
+                               controller_params_from, load_or_report)
 from bench.report.tables import RESULT_HEADER, deciding_text, print_table, print_trials, result_rows  # noqa: F401
 from bench.run.plan import DEFAULT_CONTROLLER
 
@@ -20,6 +21,7 @@ def register(sub) -> None:
     p.add_argument("--controller", default=DEFAULT_CONTROLLER, metavar="NAME",
                    help=f"registered name, entry point, package.module:attribute, exec:PROGRAM ARGS or "
                         f"sealed:NAME (default {DEFAULT_CONTROLLER})")
+    add_controller_param_option(p)
     p.add_argument("--sealed", action="store_true",
                    help="run a Python controller in a child process of its own (the same as "
                         "--controller sealed:NAME): it cannot reach the world or the scoring objects")
@@ -100,6 +102,7 @@ def run(args) -> int:
     if getattr(args, "video", "none") != "none":
         from bench.cli.render import options_from
         options_from(args)          # bad video options are invalid input: nothing is run
+    params = controller_params_from(args)
     scenarios = load_or_report(args.paths, args.root, robot=args.robot,
                                no_privileged=getattr(args, "no_privileged", False))
     if scenarios is None:
@@ -108,7 +111,7 @@ def run(args) -> int:
     if args.sealed and not args.controller.startswith(("sealed:", "exec:")):
         args.controller = f"sealed:{args.controller}"
     plan = make_plan(scenarios, controller=args.controller, limits=limits, seed=args.seed, only=args.only,
-                     where=" ".join(args.paths))
+                     where=" ".join(args.paths), controller_params=params)
     out = Path(args.out)
     check_out_folders(plan, out)
     executor = run_exec.open_executor(getattr(args, "workers", None), getattr(args, "cluster", None),

@@ -45,6 +45,8 @@ class Observation:
     height_scan: np.ndarray | None = None   # (nx, ny) world z of the terrain, m; NaN: no reading
     foot_force: np.ndarray | None = None    # (F,) normal force N, or (F, 3) world-frame force N
     joint_torque: np.ndarray | None = None  # (J,) measured joint torque, N m
+    # The scenario's gait hint (stand, trot, pace, bound, walk) or None: a hint, which a controller may ignore.
+    gait_hint: str | None = None
 
     @classmethod
     def zeros(cls, n_joints: int, n_feet: int) -> "Observation":
@@ -58,7 +60,15 @@ class Observation:
 
 @runtime_checkable
 class Controller(Protocol):
-    """What the runner calls. ``stats`` is optional."""
+    """What the runner calls. ``stats`` is optional.
+
+    Optional, all looked up once per episode: ``reset`` may also declare a ``seed`` (int) and/or ``rng``
+    (``numpy.random.Generator``) keyword, derived from the episode seed (:mod:`bench.controllers.seeding`);
+    ``signals``, a mapping of name to number or small array, is recorded every tick into ``trace.npz``
+    (:mod:`bench.sim.signals`); ``close()`` is called once when the episode ends. ``name`` (str) is what
+    the controller calls itself: recorded as ``controller_name`` in result.json, and the ``controller``
+    of the result when the run was given a controller object or factory instead of a name.
+    """
 
     def reset(self, robot: "NominalRobot", control_dt: float) -> None: ...
 

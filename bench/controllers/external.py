@@ -98,6 +98,7 @@ from pathlib import Path
 import numpy as np
 
 from bench.controllers.base import Observation, Privileged, SensingInfo
+from bench.gaits import GAIT_HINTS, gait_code
 
 PROTOCOL = "QBX"
 #: The version on the handshake's first line (every program reads it; ``versions`` offers the rest).
@@ -105,7 +106,7 @@ PROTOCOL_VERSION = 1
 #: The versions this bench speaks; a program picks one in its READY line.
 PROTOCOL_VERSIONS = (1, 2)
 #: Gait hint names -> the integer code of protocol 2 (0: no hint).
-GAIT_CODES = {"stand": 1, "trot": 2, "pace": 3, "bound": 4, "walk": 5}
+GAIT_CODES = {name: gait_code(name) for name in GAIT_HINTS}
 GAIT_NAMES = {code: name for name, code in GAIT_CODES.items()}
 PREFIX = "exec:"
 #: Default wait for one torque line, s (the runner's own per-tick limit defaults to the same).

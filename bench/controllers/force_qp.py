@@ -283,11 +283,9 @@ class ForceQP:
         self.last_solve_s = dt
         self.solves += 1
         ok = x is not None
-        if ok:
-            for v in x.tolist():  # cheap finiteness check on a short vector
-                if not math.isfinite(v):
-                    ok = False
-                    break
+        if ok:   # a finite sum means finite elements; else (or on an overflow) look element by element
+            xs = x.tolist()
+            ok = math.isfinite(sum(xs)) or all(map(math.isfinite, xs))
         f = self.f
         if ok:
             self.last_ok = True

@@ -2,7 +2,8 @@
 Jacobians, the centre of mass, and the map from foot forces to joint torques.
 
 It poses the *nominal* robot model (never the world) from an observation: trunk
-position from ``obs.privileged.base_pos``, orientation ``obs.imu_quat`` (the IMU
+position and velocity as given by the caller (a state estimate; by default
+``obs.privileged``), orientation ``obs.imu_quat`` (the IMU
 site is taken to be aligned with the trunk frame), joints ``obs.joint_pos``; then
 ``mj_kinematics`` + ``mj_comPos`` and one ``mj_jacSite`` per foot. Everything is
 written into arrays allocated once in the constructor (or is a view of the
@@ -64,6 +65,7 @@ class LegKinematics:
 
         self.jac = np.zeros((3 * self.n_feet, self.nv))
         self._jac_rows = [self.jac[3 * i:3 * i + 3] for i in range(self.n_feet)]
+        self._jac_args = list(zip(self._jac_rows, self._sites))   # (rows, site) per foot, for the tick's loop
         if isinstance(self._jv, slice):
             self.jac_joints = self.jac[:, self._jv]          # a view: no copy per tick
             self._copy_jac = False
@@ -103,16 +105,22 @@ class LegKinematics:
                 int(m.geom_type[g]) == int(mujoco.mjtGeom.mjGEOM_SPHERE) for g in geoms):
             self.foot_height_nominal = float(np.mean([m.geom_size[g][0] for g in geoms]))
 
-    def update(self, obs) -> None:
-        """Pose the nominal model from ``obs`` and refresh every attribute."""
+    def update(self, obs, base_pos=None, base_linvel=None) -> None:
+        """Pose the nominal model from ``obs`` and refresh every attribute.
+
+        ``base_pos`` / ``base_linvel``: trunk position and velocity (world) to pose
+        it at, e.g. a state estimate; ``None`` reads ``obs.privileged``.
+        """
         m, d = self.model, self.data
-        self._base_pos[:] = obs.privileged.base_pos
+        if base_pos is None or base_linvel is None:
+            base_pos, base_linvel = obs.privileged.base_pos, obs.privileged.base_linvel
+        self._base_pos[:] = base_pos
         self._base_quat[:] = obs.imu_quat
         if self._qpos_joints is not None:
             self._qpos_joints[:] = obs.joint_pos
         else:
             d.qpos[self._jq] = obs.joint_pos
-        self._base_vel[:] = obs.privileged.base_linvel
+        self._base_vel[:] = base_linvel
         self._base_angvel[:] = obs.imu_gyro
         if self._qvel_joints is not None:
             self._qvel_joints[:] = obs.joint_vel
@@ -120,10 +128,9 @@ class LegKinematics:
             self._qvel[self._jv] = obs.joint_vel
         mujoco.mj_kinematics(m, d)
         mujoco.mj_comPos(m, d)
-        rows = self._jac_rows
         jac_site = mujoco.mj_jacSite
-        for i, s in enumerate(self._sites):
-            jac_site(m, d, rows[i], None, s)
+        for rows, s in self._jac_args:
+            jac_site(m, d, rows, None, s)
         if self._feet_xpos is not None:
             self.foot_pos[:] = self._feet_xpos
         else:
@@ -134,7 +141,7 @@ class LegKinematics:
         if self.with_bias:
             mujoco.mj_comVel(m, d)
             mujoco.mj_rne(m, d, 0, self._bias_full)
-            if not isinstance(self._jv, slice):
+            if self._copy_jac:   # joint dofs not one range: bias is not a view of _bias_full
                 np.take(self._bias_full, self._jv, out=self.bias)
 
     def torques(self, u: np.ndarray, out: np.ndarray) -> np.ndarray:

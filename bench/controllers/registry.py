@@ -6,7 +6,8 @@ bench's own controllers are registered this way, exactly as a user's would be);
 a ``package.module:attribute`` reference; ``exec:program args``, an external program
 (:mod:`bench.controllers.external`); or ``sealed:NAME``, any of the Python ones run in a
 child process (:mod:`bench.controllers.sealed`). The factory is called with no
-arguments and must return an object following :class:`bench.controllers.base.Controller`.
+arguments, or with the ``--controller-param`` keywords (:mod:`bench.controllers.params`),
+and must return an object following :class:`bench.controllers.base.Controller`.
 """
 
 from __future__ import annotations
@@ -98,15 +99,55 @@ def resolve(name: str) -> Callable[[], object]:
     )
 
 
-def make(name_or_object: object) -> tuple[str, object]:
-    """Resolve and instantiate. Accepts a name, a factory, or a controller object."""
+def make(name_or_object: object, params: dict | None = None) -> tuple[str, object]:
+    """Resolve and instantiate. Accepts a name, a factory, or a controller object.
+
+    ``params`` (``--controller-param``) are keyword arguments for the factory; a key the factory does not
+    take raises :class:`~bench.controllers.params.ControllerParamError` before anything is made.
+    """
     if isinstance(name_or_object, str):
         factory = resolve(name_or_object)
-        return name_or_object, factory()
+        return name_or_object, _call_factory(factory, params, name_or_object)
     if hasattr(name_or_object, "step") and hasattr(name_or_object, "reset"):
         obj = name_or_object
+        if params:
+            from bench.controllers.params import ControllerParamError
+
+            raise ControllerParamError("controller parameters need a controller name or a factory, "
+                                       f"not an already made controller ({type(obj).__name__})")
         return getattr(obj, "name", type(obj).__name__), obj
     if callable(name_or_object):
-        obj = name_or_object()
+        obj = _call_factory(name_or_object, params, getattr(name_or_object, "__name__", "custom"))
         return getattr(obj, "name", type(obj).__name__), obj
     raise ControllerNotFound(f"cannot make a controller from {name_or_object!r}")
+
+
+def check_params(name: str, params: dict | None) -> None:
+    """Raise ``ControllerParamError`` unless the controller ``name`` accepts every key of ``params``.
+
+    ``exec:`` programs take none (their arguments go in the spec); ``sealed:`` controllers are checked in
+    their child process, which alone imports the controller's code.
+    """
+    if not params:
+        return
+    from bench.controllers.params import ControllerParamError, check_params as _check
+
+    if name.startswith("exec:"):
+        raise ControllerParamError(f"--controller-param: {name!r} is an external program; it takes no "
+                                   "controller parameters (give its arguments in the exec: spec)")
+    if name.startswith("sealed:"):
+        return
+    _check(resolve(name), params, name)
+
+
+def _call_factory(factory, params: dict | None, name: str):
+    if not params:
+        return factory()
+    if getattr(factory, "sealed_spec", None) is not None:
+        return factory(params=params)   # checked and applied in the child process
+    if name.startswith("exec:"):
+        check_params(name, params)
+    from bench.controllers.params import check_params as _check
+
+    _check(factory, params, name)
+    return factory(**params)

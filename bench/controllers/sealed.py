@@ -60,6 +60,7 @@ import weakref
 import numpy as np
 
 from bench.controllers.external import handshake_header as _protocol_header
+from bench.controllers.params import canonical
 from bench.controllers.external import (
     PROTOCOL_VERSIONS, ExternalControllerError, ExternalControllerTimeout, ObservationLayout, answered_version,
 )
@@ -207,8 +208,9 @@ class SealedController:
     """Runs the Python controller ``spec`` in a child process (see the module docstring)."""
 
     def __init__(self, spec: str, *, tick_timeout_s: float | None = None, start_timeout_s: float | None = None,
-                 name: str | None = None) -> None:
+                 name: str | None = None, params: dict | None = None) -> None:
         self.spec = spec
+        self.params = dict(params or {})   # --controller-param keywords, applied in the child
         self.name = name or PREFIX + spec
         self.tick_timeout_s = DEFAULT_TICK_TIMEOUT_S if tick_timeout_s is None else float(tick_timeout_s)
         self.start_timeout_s = DEFAULT_START_TIMEOUT_S if start_timeout_s is None else float(start_timeout_s)
@@ -340,12 +342,18 @@ class SealedController:
             self._stderr = None
 
     # -- Controller protocol -------------------------------------------------------------------
-    def reset(self, robot, control_dt: float) -> None:
+    def reset(self, robot, control_dt: float, *, seed: int | None = None) -> None:
         J, F = len(robot.manifest.joints), len(robot.manifest.feet)
         self._stats = {}
         self._start()
+        header = handshake_header(robot, control_dt)
+        extra = ([f"seed {int(seed)}"] if seed is not None else []) + (
+            [f"controller_params {canonical(self.params)}"] if self.params else [])
+        if extra:   # lines the child reads and a protocol reader ignores, before the closing 'end'
+            head, _, _ = header.rpartition("end\n")
+            header = head + "".join(x + "\n" for x in extra) + "end\n"
         try:
-            self._handshake(handshake_header(robot, control_dt))
+            self._handshake(header)
         except BaseException:
             self._abort()
             raise
@@ -451,8 +459,8 @@ def from_spec(spec: str):
         except registry.ControllerNotFound as exc:
             raise registry.ControllerNotFound(f"{exc} (in {PREFIX + spec!r})") from None
 
-    def factory() -> SealedController:
-        return SealedController(child_spec, name=PREFIX + spec)
+    def factory(params: dict | None = None) -> SealedController:
+        return SealedController(child_spec, name=PREFIX + spec, params=params)
 
     factory.__doc__ = f"{inner} in a sealed child process"
     factory.sealed_spec = child_spec

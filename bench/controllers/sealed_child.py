@@ -240,10 +240,17 @@ def serve(spec: str, fin, fout) -> int:
     except (KeyError, ValueError):
         raise _Stop(EXIT_BAD_INPUT, "handshake lacks a valid 'control_dt_s' line") from None
     from bench.controllers import registry
+    from bench.controllers.seeding import reset_keywords
 
     try:
-        _, controller = registry.make(spec)
-        controller.reset(robot, control_dt)
+        params = json.loads(header["controller_params"]) if header.get("controller_params") else None
+        _, controller = registry.make(spec, params)
+        extra = {}
+        if header.get("seed", "").strip():   # the parent's controller seed, as the parent would give it
+            seed = int(header["seed"])
+            wanted = reset_keywords(controller)
+            extra = {k: v for k, v in (("seed", seed), ("rng", np.random.default_rng(seed))) if k in wanted}
+        controller.reset(robot, control_dt, **extra)
     except BaseException as exc:  # noqa: BLE001
         traceback.print_exc()
         raise _ControllerRaised("while being made or in reset()", exc) from None

@@ -174,9 +174,7 @@ def rot_z(yaw: float, out: np.ndarray | None = None) -> np.ndarray:
     if out is None:
         out = np.empty((3, 3))
     c, s = math.cos(yaw), math.sin(yaw)
-    out[0, 0] = c; out[0, 1] = -s; out[0, 2] = 0.0
-    out[1, 0] = s; out[1, 1] = c; out[1, 2] = 0.0
-    out[2, 0] = 0.0; out[2, 1] = 0.0; out[2, 2] = 1.0
+    out[...] = ((c, -s, 0.0), (s, c, 0.0), (0.0, 0.0, 1.0))   # one assignment, not nine element writes
     return out
 
 

@@ -4,8 +4,12 @@ Both are assembled from the parts in this package and differ in exactly one
 thing: ``force-qp-l1`` adds an L1 adaptive augmentation of the trunk dynamics.
 Per control tick:
 
-1. ``LegKinematics.update``: pose the nominal robot from the observation (feet,
-   Jacobians, COM).
+0. Trunk state: by default the reference estimator (``LegImuEstimator``: IMU +
+   leg kinematics under the contact flags) gives the trunk position and
+   velocity; the stacks never read ``obs.privileged``. With ``privileged=True``
+   they read the simulator's true trunk state there instead.
+1. ``LegKinematics.update``: pose the nominal robot from the observation and
+   that trunk state (feet, Jacobians, COM).
 2. Command shaping: the body-frame command ``[vx, vy, yaw_rate]`` is rate
    limited (``max_lin_acc``, ``max_yaw_acc``), turned to world by the current
    heading and integrated into a desired heading and horizontal position (the
@@ -18,7 +22,11 @@ Per control tick:
 3. ``GaitScheduler``: stands while the shaped command is zero; trots (from a
    double-support point, with load ramps) as soon as it is not, and returns to
    standing once the command has been zero for a while. (Documented choice:
-   it trots when commanded to move, stands otherwise.)
+   it trots when commanded to move, stands otherwise.) A scenario's gait hint
+   (``obs.gait_hint``) picks the gait instead: ``pace``, ``bound``, ``walk`` or
+   ``trot`` when moving (parameters per gait in ``gait.GAIT_TUNING``); ``stand``
+   stands still whatever the velocity command (it is shaped as a zero command);
+   an unknown hint is ignored; without a hint it trots as above.
 4. ``DesiredWrench``: PD + nominal gravity compensation -> body wrench.
    ``force-qp-l1`` first runs ``L1Adaptive`` on the trunk error state and writes
    its adaptive acceleration into the wrench's feed-forward slot.
@@ -50,8 +58,9 @@ import time
 import numpy as np
 
 from bench.controllers import so3
+from bench.controllers.estimator import LegImuEstimator
 from bench.controllers.force_qp import ForceQP
-from bench.controllers.gait import GaitScheduler
+from bench.controllers.gait import GAIT_TUNING, GaitScheduler
 from bench.controllers.ground import GroundPlane
 from bench.controllers.kinematics import LegKinematics
 from bench.controllers.l1 import L1Adaptive
@@ -59,6 +68,8 @@ from bench.controllers.swing import SwingPlanner
 from bench.controllers.wrench import DesiredWrench
 
 CHANNELS = ("x", "y", "z", "roll", "pitch", "yaw")
+#: Standard gravity, m/s^2 (the value the robot models use; only for the l1_load_kg signal).
+GRAVITY_M_S2 = 9.81
 
 
 def _rot_y(a: float) -> np.ndarray:
@@ -76,7 +87,9 @@ class ForceQPController:
 
     Parameters (all keyword, all have defaults)
     -------------------------------------------
-    gait_period_s, duty, load_ramp: gait scheduler (see ``gait.py``).
+    gait_period_s, duty, load_ramp: gait scheduler (see ``gait.py``), for the trot.
+    gait_tuning: gait name -> ``{period_s, duty, load_ramp, swing_height_m}`` overriding
+        ``gait.GAIT_TUNING`` for the hinted gaits (pace, bound, walk).
     swing_height_m, k_vel, max_reach_m, swing_kp, swing_kd: swing planner.
     leg_bias_ff: add the nominal model's gravity/Coriolis joint torques (feed-forward).
     mu, fz_min_n, fz_max_n, alpha, beta, wrench_weights, solver, qp_direct: force QP
@@ -95,6 +108,11 @@ class ForceQPController:
     scan_tilt_tau_s: time constant of the low-pass on that desired roll and pitch (s).
     scan_height_offset_m: added to the desired trunk height while a scan is present (m); a taller
         stance folds the knees less far back, away from the edge of the step behind when descending.
+    privileged: read the true trunk position and velocity from ``obs.privileged``
+        instead of estimating them (a scenario or run without privileged state then
+        stops the episode with an error saying so).
+    estimator: keyword overrides of the estimator's noise figures
+        (``EstimatorParams`` in ``estimator.py``); unused when ``privileged``.
     """
 
     name = "force-qp"
@@ -136,6 +154,9 @@ class ForceQPController:
         scan_max_tilt_deg: float = 14.0,
         scan_tilt_tau_s: float = 0.4,
         scan_height_offset_m: float = 0.0,
+        gait_tuning: dict | None = None,
+        privileged: bool = False,
+        estimator: dict | None = None,
     ) -> None:
         self.params = dict(locals())
         self.params.pop("self")
@@ -154,7 +175,12 @@ class ForceQPController:
         self.kin = LegKinematics(robot, with_bias=p["leg_bias_ff"])
         nf, nj = self.kin.n_feet, self.kin.n_joints
         self.n_feet, self.n_joints = nf, nj
-        self.gait = GaitScheduler(p["gait_period_s"], p["duty"], load_ramp=p["load_ramp"])
+        tuning = {g: {**v, **(p["gait_tuning"] or {}).get(g, {})} for g, v in GAIT_TUNING.items()}
+        self.gait = GaitScheduler(p["gait_period_s"], p["duty"], load_ramp=p["load_ramp"], tuning=tuning)
+        self._swing_height = {g: float(v.get("swing_height_m", p["swing_height_m"])) for g, v in tuning.items()}
+        self._swing_height["trot"] = float(p["swing_height_m"])
+        self._hint = None
+        self._hint_stand = False
         self.swing = SwingPlanner(nf, p["swing_height_m"], p["k_vel"], p["max_reach_m"],
                                   kp=p["swing_kp"], kd=p["swing_kd"])
         self.qp = ForceQP(nf, mu=p["mu"], fz_min_n=p["fz_min_n"], fz_max_n=p["fz_max_n"],
@@ -197,6 +223,15 @@ class ForceQPController:
         self._normal_set = [False] * nf
         self.ticks = 0
         self.step_time_s = 0.0
+        self._privileged = bool(p["privileged"])
+        self.est = None
+        if not self._privileged:
+            self.est = LegImuEstimator(robot, self.dt, **(p["estimator"] or {}))
+            self.est.reset()
+            self._est_contact = np.ones(nf, dtype=bool)
+        # Per-tick signals the bench records (trace.npz ``signal_*``, plots, report): 1 when this tick's
+        # force QP solved, 0 when it fell back to the previous forces.
+        self.signals = {"qp_ok": 1.0}
         self._reset_extra()
 
     def _reset_extra(self) -> None:
@@ -206,18 +241,28 @@ class ForceQPController:
     def step(self, obs, command) -> np.ndarray:
         t0 = time.perf_counter()
         kin = self.kin
-        kin.update(obs)
+        base_pos, base_vel = self._trunk_state(obs)
+        kin.update(obs, base_pos, base_vel)
         rot = kin.rot
-        pos = obs.privileged.base_pos.tolist()
-        vel_arr = obs.privileged.base_linvel
-        vel = vel_arr.tolist()
+        pos = base_pos.tolist()
+        vel = base_vel.tolist()
         dt = self.dt
         if not self._started:
-            self._start(obs)
+            self._start(pos)
+
+        # a gait hint picks the gait (see the module docstring); "stand" stands still; an unknown hint is ignored
+        hint = getattr(obs, "gait_hint", None)
+        if hint != self._hint:
+            self._hint = hint
+            self._hint_stand = hint == "stand"
+            if hint in self.gait.gaits:
+                self.gait.request(hint)
 
         # command shaping
         c = self.cmd
         cx, cy_, cz = float(command[0]), float(command[1]), float(command[2])
+        if self._hint_stand:
+            cx = cy_ = cz = 0.0
         ls, ys = self.max_lin_step, self.max_yaw_step
         c[0] += min(ls, max(-ls, cx - c[0]))
         c[1] += min(ls, max(-ls, cy_ - c[1]))
@@ -254,6 +299,7 @@ class ForceQPController:
         # gait
         gait = self.gait
         gait.update(dt, moving)
+        self.swing.swing_height_m = self._swing_height.get(gait.gait, self.swing.swing_height_m)
         contact = gait.contact_list
 
         scan = getattr(obs, "height_scan", None)
@@ -299,6 +345,7 @@ class ForceQPController:
         if smap is not None:
             self._stance_normals(smap, contact, fp)
         f = self.qp.solve(self.r, w, gait.load_list).tolist()
+        self.signals["qp_ok"] = 1.0 if self.qp.last_ok else 0.0
 
         # per-foot Cartesian force on the foot: -f for stance, swing PD otherwise
         sw = self.swing
@@ -394,9 +441,29 @@ class ForceQPController:
         if changed:
             self.qp.set_normals(self._normals)
 
-    def _start(self, obs) -> None:
+    def _trunk_state(self, obs):
+        """Trunk position and velocity (world) this tick: the estimate, or the truth when privileged."""
+        if self.est is None:
+            priv = obs.privileged
+            if priv is None:
+                raise RuntimeError(f"{self.name} was made with privileged=True but this run gives no privileged "
+                                   f"state (obs.privileged is None); use the default privileged=False, which "
+                                   f"estimates the trunk state")
+            return priv.base_pos, priv.base_linvel
+        # the feet the stack itself treats as stance (last tick's schedule) and the sensor says are down
+        c = self._est_contact
+        fc = obs.foot_contact
+        if fc.any():
+            np.logical_and(self.gait.contact_list, fc, out=c)
+        else:
+            # no contact sensing reported (or airborne): fully loaded stance feet, as the ground estimate does
+            c[:] = [ld >= 1.0 for ld in self.gait.load_list]
+        s = self.est.update(obs, contact=c)
+        return s.base_pos, s.base_linvel
+
+    def _start(self, pos) -> None:
         kin = self.kin
-        self._p_des[:] = obs.privileged.base_pos.tolist()
+        self._p_des[:] = pos
         self.yaw_des = so3.yaw_of_mat(kin.rot)
         self.ground.reset(kin.foot_pos.tolist(), kin.foot_height_nominal)
         self._started = True
@@ -466,6 +533,14 @@ class ForceQPL1Controller(ForceQPController):
                              u_max=umax)
         self._l1_chans = np.asarray(chans, dtype=np.int64)
         self._l1_all = chans == list(range(len(CHANNELS)))
+        # Signals: the adaptive accelerations of the chosen channels (m/s^2 or rad/s^2, the L1 input u),
+        # and, when z is adapted, the load it stands for: m * u_z / g, the extra mass whose weight the
+        # vertical adaptive force carries (an estimate: it also absorbs any other vertical model error).
+        self.signals["l1_u"] = self.l1.u
+        self._mass_kg_per_g = float(self.robot.mass_kg) / GRAVITY_M_S2
+        self._l1_z = chans.index(CHANNELS.index("z")) if CHANNELS.index("z") in chans else None
+        if self._l1_z is not None:
+            self.signals["l1_load_kg"] = 0.0
 
     @staticmethod
     def _per_channel(value, chans) -> np.ndarray:
@@ -481,7 +556,29 @@ class ForceQPL1Controller(ForceQPController):
 
     def _adapt(self) -> None:
         u = self.l1.update(self.wrench.error_state)
+        if self._l1_z is not None:
+            self.signals["l1_load_kg"] = self._mass_kg_per_g * float(u[self._l1_z])
         if self._l1_all:
             self.wrench.a_ff[:] = u
         else:
             self.wrench.a_ff[self._l1_chans] = u
+
+
+class ForceQPPrivilegedController(ForceQPController):
+    """force-qp reading the true trunk position and velocity (obs.privileged) instead of estimating them."""
+
+    name = "force-qp-privileged"
+
+    def __init__(self, **kwargs) -> None:
+        kwargs.setdefault("privileged", True)
+        super().__init__(**kwargs)
+
+
+class ForceQPL1PrivilegedController(ForceQPL1Controller):
+    """force-qp-l1 reading the true trunk position and velocity (obs.privileged) instead of estimating them."""
+
+    name = "force-qp-l1-privileged"
+
+    def __init__(self, **kwargs) -> None:
+        kwargs.setdefault("privileged", True)
+        super().__init__(**kwargs)

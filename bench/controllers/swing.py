@@ -55,21 +55,32 @@ def swing_point(p0, pf, s: float, duration_s: float, height_m: float, depth_m: f
         span = 1.0 - 2.0 * hold
         b, db = bezier3((s - hold) / span)
         db /= span
+    # bezier3 written out (it runs three times per swinging foot per tick; same expressions)
+    elif s <= 0.0:
+        b = db = 0.0
+    elif s >= 1.0:
+        b, db = 1.0, 0.0
     else:
-        b, db = bezier3(s)
+        b, db = s * s * (3.0 - 2.0 * s), 6.0 * s * (1.0 - s)
     rate = 1.0 / duration_s
     x0, y0, z0 = p0[0], p0[1], p0[2]
     dx, dy = pf[0] - x0, pf[1] - y0
     zf = pf[2] - depth_m
     apex = max(z0, pf[2]) + height_m if apex_z is None else apex_z
     if s < 0.5:
-        bz, dbz = bezier3(2.0 * s)
-        z = z0 + (apex - z0) * bz
-        vz = (apex - z0) * dbz * 2.0 * rate
+        h = 2.0 * s
+        z_from, z_to = z0, apex
     else:
-        bz, dbz = bezier3(2.0 * s - 1.0)
-        z = apex + (zf - apex) * bz
-        vz = (zf - apex) * dbz * 2.0 * rate
+        h = 2.0 * s - 1.0
+        z_from, z_to = apex, zf
+    if h <= 0.0:
+        bz = dbz = 0.0
+    elif h >= 1.0:
+        bz, dbz = 1.0, 0.0
+    else:
+        bz, dbz = h * h * (3.0 - 2.0 * h), 6.0 * h * (1.0 - h)
+    z = z_from + (z_to - z_from) * bz
+    vz = (z_to - z_from) * dbz * 2.0 * rate
     return x0 + dx * b, y0 + dy * b, z, dx * db * rate, dy * db * rate, vz
 
 

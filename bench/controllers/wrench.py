@@ -98,7 +98,9 @@ class DesiredWrench:
         errors (``rot`` as given to :meth:`update_errors`)."""
         es, kp, kd = self._es, self._kp, self._kd
         ff = self.a_ff.tolist()
-        acc = [ff[k] - kp[k] * es[k] - kd[k] * es[k + 6] for k in range(6)]
+        acc = [ff[0] - kp[0] * es[0] - kd[0] * es[6], ff[1] - kp[1] * es[1] - kd[1] * es[7],
+               ff[2] - kp[2] * es[2] - kd[2] * es[8], ff[3] - kp[3] * es[3] - kd[3] * es[9],
+               ff[4] - kp[4] * es[4] - kd[4] * es[10], ff[5] - kp[5] * es[5] - kd[5] * es[11]]
         self.accel[:] = acc
         m = self.mass_kg
         ax, ay, az = acc[3], acc[4], acc[5]

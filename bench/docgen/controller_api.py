@@ -64,7 +64,9 @@ def body() -> str:
                        and n not in ("Controller",) and not n.startswith("_")):
         lines += _section(f"`{name}`", getattr(base, name))
     lines += [rst_to_md(docstring(model)), ""]
-    lines += ["## `NominalRobot` (the `robot` given to `reset`)", "", docstring(model.NominalRobot), ""]
+    # the docstring's summary; its Attributes section is the table below (ATTRIBUTE_DOCS is read from it)
+    summary = docstring(model.NominalRobot).split("Attributes\n", 1)[0].rstrip()
+    lines += ["## `NominalRobot` (the `robot` given to `reset`)", "", rst_to_md(summary), ""]
     from bench.robot.locate import resolve_robot
 
     lines += ["Every attribute of the robot object, as the bundled quad12 has it (arrays are read-only; "

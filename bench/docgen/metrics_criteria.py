@@ -16,6 +16,8 @@ PAGE = Page(
 
 
 def _limits(c) -> str:
+    if getattr(c, "limit_doc", None):   # a criterion whose limit is not one number says what is written
+        return c.limit_doc
     if getattr(c, "boolean", False):
         return "`true` / `false`"
     lo, hi = getattr(c, "ge", None), getattr(c, "le", None)
@@ -37,6 +39,7 @@ def body() -> str:
         if getattr(c, "scope", "") == "trials":
             direction += ", over a scenario's trials"
         crit_rows.append([code(name), code(getattr(c, "metric", "")) if getattr(c, "metric", "") else
+                          code(c.reads) if getattr(c, "reads", None) else
                           ("`fell`" if name == "no_fall" else "(trials)"),
                           (getattr(c, "unit", "") or "").strip(), _limits(c), direction, c.description])
     met_rows = [[code(k), v] for k, v in sorted(metrics.METRIC_DOCS.items())]

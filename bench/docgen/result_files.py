@@ -52,8 +52,11 @@ def body() -> str:
         required = "always" if f.name in record.REQUIRED_KEYS else (
             "when it applies" if f.name in record._OPTIONAL else "always (added later: may be absent in old files)")
         rec_rows.append([code(f.name), _type_name(f.type), required, record.KEY_DOCS.get(f.name, "")])
-    trace_rows = [[code(k), "documented" if k in trace.CONTRACT_KEYS else "extra", trace.KEY_DOCS.get(k, "")]
-                  for k in trace.CONTRACT_KEYS + trace.EXTRA_KEYS]
+    keys = trace.CONTRACT_KEYS + trace.EXTRA_KEYS + trace.OPTIONAL_KEYS
+    keys += tuple(k for k in trace.KEY_DOCS if k not in keys)   # key patterns such as signal_<name>
+    trace_rows = [[code(k), "documented" if k in trace.CONTRACT_KEYS else
+                   "extra, when used" if k in trace.OPTIONAL_KEYS else "extra", trace.KEY_DOCS.get(k, "")]
+                  for k in keys]
     tol_rows = [[code(kind), t.direction, t.abs, t.rel] for kind, t in baseline.KINDS.items()]
     return "\n".join([
         "```text",

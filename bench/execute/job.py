@@ -25,6 +25,7 @@ from bench.robot.model import NominalRobot
 from bench.scoring.verdict import score
 from bench.sim.episode import EpisodeLimits, run_episode
 from bench.sim.interrupts import UserInterrupts, raised_reason
+from bench.sim.signals import signal_names
 from bench.sim.trace import Trace
 from bench.world.build import build_world, manifest_for
 
@@ -35,6 +36,7 @@ class Job:
     controller: object = "force-qp-l1"   # a name, a factory or a controller object
     seed: int | None = None
     limits: EpisodeLimits = field(default_factory=EpisodeLimits)
+    controller_params: dict = field(default_factory=dict)   # keywords for the controller's factory
 
 
 @dataclass
@@ -58,6 +60,15 @@ def _base_result(scenario, controller_name: str, seed: int) -> dict:
     return base_record(scenario, controller_name, seed).to_json()
 
 
+def _label(controller) -> str | None:
+    """The controller object's own ``name`` attribute (what it calls itself), when it has a text one."""
+    try:
+        name = getattr(controller, "name", None)
+    except Exception:  # noqa: BLE001 - a property of the controller's own: informative only
+        return None
+    return name if isinstance(name, str) and name else None
+
+
 def run_job(job: Job) -> Outcome:
     # Controller code runs while the controller is made (its module imported, its constructor called) and
     # during the episode: whatever it raises, SystemExit and KeyboardInterrupt included, is this episode's
@@ -73,8 +84,9 @@ def _run_job(job: Job, user: UserInterrupts) -> Outcome:
     record = base_record(sc, str(name), seed)
     t0 = time.perf_counter()
     try:
-        cname, controller = registry.make(job.controller)
-        record = record.replace(controller=str(cname))
+        cname, controller = registry.make(job.controller, job.controller_params or None)
+        record = record.replace(controller=str(cname), controller_params=dict(job.controller_params) or None,
+                                controller_name=_label(controller))
     except BaseException as exc:  # noqa: BLE001 - SystemExit from a controller's module or constructor too
         if user.by_user(exc):
             raise
@@ -122,5 +134,6 @@ def _run_job(job: Job, user: UserInterrupts) -> Outcome:
         watchdog_restored=(None if getattr(ep, "watchdog_restored", None) is None
                            else tuple(ep.watchdog_restored)),
         deciding=deciding,
+        controller_signals=tuple(signal_names(ep.trace.arrays)) or None,
     )
     return Outcome(record.to_json(), ep.trace, ep.events)

@@ -44,7 +44,8 @@ class ScenarioFile(pytest.File):
     def collect(self):
         from bench.errors import ScenarioError, ScenarioErrors
         from bench.execute.trials import is_trial_scenario
-        from bench.pytest_plugin.items import ScenarioItem, TrialsItem
+        from bench.execute import trials as trials_mod
+        from bench.pytest_plugin.items import ScenarioItem, TrialItem, TrialsItem
         from bench.run.load import load_file_checked
 
         settings = settings_of(self.config)
@@ -57,8 +58,14 @@ class ScenarioFile(pytest.File):
         except ScenarioError as exc:
             raise self.CollectError(str(exc)) from None
         for sc in scenarios:
-            cls = TrialsItem if is_trial_scenario(sc) else ScenarioItem
-            yield cls.from_parent(self, name=sc.id, scenario=sc)
+            if not is_trial_scenario(sc):
+                yield ScenarioItem.from_parent(self, name=sc.id, scenario=sc)
+                continue
+            # one item per trial (xdist spreads them), then the scenario's verdict (moved after all items)
+            episodes, _, _ = trials_mod.plan([sc], settings.seed)
+            for t in episodes:
+                yield TrialItem.from_parent(self, name=t.id, scenario=t, trial_of=sc)
+            yield TrialsItem.from_parent(self, name=sc.id, scenario=sc)
 
 
 def register_tag(config, tag: str) -> bool:
@@ -74,9 +81,12 @@ def register_tag(config, tag: str) -> bool:
 
 
 def pytest_collection_modifyitems(session, config, items) -> None:
-    from bench.pytest_plugin.items import ScenarioItem
+    from bench.pytest_plugin.items import ScenarioItem, TrialsItem
 
     settings = settings_of(config)
+    # A trials scenario's verdict item waits for its trials: after every other item, so that no worker
+    # holds it ahead of a trial still to run (xdist hands items out in this order).
+    items[:] = [i for i in items if not isinstance(i, TrialsItem)] + [i for i in items if isinstance(i, TrialsItem)]
     settings.order = {item.nodeid: i for i, item in enumerate(items)}
     # Two items writing one results folder would overwrite each other: fail the later ones.
     seen: dict[str, str] = {}
@@ -87,6 +97,26 @@ def pytest_collection_modifyitems(session, config, items) -> None:
                 item.clash = (f"{item.scenario.id}: its results folder {slug!r} is already used by {seen[slug]}; "
                               f"give the scenarios distinct names")
             seen.setdefault(slug, item.nodeid)
+
+
+@pytest.hookimpl(trylast=True)
+def pytest_collection_finish(session) -> None:
+    """The trial items left after deselection (-k, -m): the verdict items run the others themselves."""
+    from bench.pytest_plugin.items import TrialItem
+
+    settings = session.config.stash.get(SETTINGS, None)
+    if settings is not None:
+        settings.selected_trials = {i.scenario.id for i in session.items if isinstance(i, TrialItem)}
+
+
+def pytest_report_teststatus(report, config):
+    """A trial item passes when its trial ran; the terminal says whether the trial met its criteria."""
+    if report.when != "call" or not report.passed:
+        return None
+    status = dict(report.user_properties).get("bench.trial_status")
+    if status is None:
+        return None
+    return f"trial {status}", "t" if status == "passed" else "T", f"TRIAL {status.upper()}"
 
 
 @pytest.hookimpl(optionalhook=True)

@@ -43,8 +43,13 @@ class BenchRunner:
         except (ScenarioError, ScenarioErrors) as exc:
             pytest.fail(f"bench_run: invalid scenario:\n{exc}", pytrace=False)
 
-    def __call__(self, scenario, controller=None, *, variant: str | None = None, seed: int | None = None) -> BenchRun:
-        """Run one scenario and return its :class:`BenchRun` (``variant`` picks a matrix variant by id)."""
+    def __call__(self, scenario, controller=None, *, variant: str | None = None, seed: int | None = None,
+                 controller_params: dict | None = None) -> BenchRun:
+        """Run one scenario and return its :class:`BenchRun` (``variant`` picks a matrix variant by id).
+
+        ``seed`` defaults to ``--bench-seed`` (else the scenario's own); ``controller_params`` (keywords for
+        a named controller's constructor) default to ``--bench-controller-param`` when ``controller`` is the
+        configured one."""
         from bench.run.errors import InvalidInput
 
         if isinstance(scenario, (str, os.PathLike)):
@@ -59,9 +64,15 @@ class BenchRunner:
             from bench.run.load import without_privileged
 
             scenario = without_privileged([scenario])[0]
+        settings = settings_of(self.config)
+        if seed is None:
+            seed = settings.seed
+        if controller_params is None and controller is None:
+            controller_params = settings.controller_params
         try:
             return execute(self.config, self._request.node, scenario,
-                           controller if controller is not None else self.controller, seed=seed)
+                           controller if controller is not None else self.controller, seed=seed,
+                           controller_params=controller_params)
         except InvalidInput as exc:
             pytest.fail(f"bench_run: {exc}", pytrace=False)
 

@@ -6,8 +6,10 @@ Options (command line, or ``[tool.pytest.ini_options]`` key in brackets):
 (``bench_baseline``), ``--bench-history FILE`` / ``--bench-no-history`` (``bench_history``),
 ``--bench-video none|failed|all`` (``bench_video``), ``--bench-video-dir DIR`` (``bench_video_dir``),
 ``--bench-no-privileged`` (``bench_no_privileged = true``: every scenario runs with ``sensing.privileged``
-false), glob (``bench_glob``, default ``*.yaml *.yml``). Paths in the ini file are relative to it; on the
-command line, to the current folder.
+false), ``--bench-seed N`` (``bench_seed``), ``--bench-controller-param KEY=VALUE`` (``bench_controller_params``,
+one per line), glob (``bench_glob``, default ``*.yaml *.yml``). Paths in the ini file are relative
+to it (the robot manifest, the results folder, the baseline, the history, and the program and file
+arguments of an ``exec:`` controller); on the command line, to the current folder.
 """
 
 from __future__ import annotations
@@ -33,6 +35,11 @@ def pytest_addoption(parser) -> None:
     g.addoption("--bench-controller", default=None, metavar="NAME",
                 help="controller to run the scenarios with: registered name, package.module:attribute or "
                      "'exec:program args' (ini: bench_controller)")
+    g.addoption("--bench-controller-param", action="append", default=None, metavar="KEY=VALUE",
+                help="keyword argument for the controller's constructor, the value read as YAML (repeatable; "
+                     "ini: bench_controller_params, one KEY=VALUE per line; the command line replaces the ini)")
+    g.addoption("--bench-seed", default=None, type=int, metavar="N",
+                help="replace every scenario's seed, as bench run --seed (ini: bench_seed)")
     g.addoption("--bench-out", default=None, metavar="DIR",
                 help="results folder (default bench-results/ in the rootdir; ini: bench_out)")
     g.addoption("--bench-baseline", default=None, metavar="FILE",
@@ -49,7 +56,11 @@ def pytest_addoption(parser) -> None:
                      "controller never needs the true trunk state (ini: bench_no_privileged = true)")
     parser.addini("bench_scenarios", "scenario files or folders to collect (relative to this file)",
                   type="paths", default=[])
-    parser.addini("bench_controller", "controller to run scenario items with", default="")
+    parser.addini("bench_controller", "controller to run scenario items with (an exec: program and its file "
+                  "arguments relative to this file)", default="")
+    parser.addini("bench_controller_params", "KEY=VALUE keyword arguments for the controller, one per line",
+                  type="linelist", default=[])
+    parser.addini("bench_seed", "replace every scenario's seed (as bench run --seed)", default="")
     parser.addini("bench_robot", "robot to run every scenario on (a bundled name, or a manifest relative to "
                   "this file)", default="")
     parser.addini("bench_out", "results folder (relative to this file)", default="")
@@ -83,6 +94,12 @@ class Settings:
     video_off: bool = False
     robot: str | None = None   # --bench-robot: every scenario runs on it
     no_privileged: bool = False   # --bench-no-privileged: every scenario runs without the true state
+    seed: int | None = None    # --bench-seed: replaces every scenario's seed
+    trial_plans: dict = field(default_factory=dict)      # trials scenario id -> its Plan (this process)
+    trial_results: dict = field(default_factory=dict)    # trial id -> BenchRun run by this process
+    selected_trials: set = field(default_factory=set)    # trial ids that are items of this session
+    session_start_ns: int = 0                            # the controller's start (xdist workers share it)
+    controller_params: dict = field(default_factory=dict)   # --bench-controller-param keywords
 
     @property
     def active(self) -> bool:
@@ -113,6 +130,62 @@ def _ini_base(config) -> Path:
 def _ini_path(config, name: str) -> Path | None:
     value = (config.getini(name) or "").strip()
     return (_ini_base(config) / value) if value else None
+
+
+def exec_relative_to(base: Path, spec: str) -> str:
+    """An ``exec:`` spec from the ini file with its paths made absolute against the ini file's folder.
+
+    The program, when given as a path (it has a ``/``), and every argument that names an existing file or
+    folder next to the ini file; a bare program name is looked up on ``PATH`` as ever, options and other
+    words are kept. Other specs are returned as they are.
+    """
+    import os
+    import shlex
+
+    if not spec.startswith("exec:"):
+        return spec
+    try:
+        argv = shlex.split(spec[len("exec:"):])
+    except ValueError:
+        return spec   # the registry reports the malformed command line
+    if not argv:
+        return spec
+    out = []
+    for i, word in enumerate(argv):
+        if os.path.isabs(word) or word.startswith("-"):
+            out.append(word)
+        elif i == 0 and "/" in word:
+            out.append(str(base / word))
+        elif i > 0 and (base / word).exists():
+            out.append(str(base / word))
+        else:
+            out.append(word)
+    return "exec:" + shlex.join(out)
+
+
+def _seed(config) -> int | None:
+    seed = config.getoption("bench_seed")
+    if seed is not None:
+        return int(seed)
+    text = (config.getini("bench_seed") or "").strip()
+    if not text:
+        return None
+    try:
+        return int(text)
+    except ValueError:
+        raise pytest.UsageError(f"bench_seed in {config.inipath}: {text!r} is not a whole number") from None
+
+
+def _controller_params(config) -> dict:
+    from bench.controllers.params import ControllerParamError, parse_params
+
+    cli = config.getoption("bench_controller_param")
+    items, option = (cli, "--bench-controller-param") if cli else (
+        [x for x in config.getini("bench_controller_params") if x.strip()], f"bench_controller_params in {config.inipath}")
+    try:
+        return parse_params(items, option=option)
+    except ControllerParamError as exc:
+        raise pytest.UsageError(str(exc)) from None
 
 
 def matches(settings: Settings, path: Path) -> bool:
@@ -150,11 +223,13 @@ def make_settings(config) -> Settings:
     if video not in VIDEO_MODES:
         raise pytest.UsageError(f"bench_video in {config.inipath}: {video!r} is not one of {', '.join(VIDEO_MODES)}")
     globs = list(config.getini("bench_glob")) or list(DEFAULT_GLOBS)
+    controller = config.getoption("bench_controller")
+    if not controller:
+        controller = exec_relative_to(_ini_base(config), (config.getini("bench_controller") or "").strip())
     settings = Settings(
         scenario_paths=scenario_paths,
         globs=globs,
-        controller=config.getoption("bench_controller") or (config.getini("bench_controller") or "").strip()
-        or DEFAULT_CONTROLLER,
+        controller=controller or DEFAULT_CONTROLLER,
         out=out,
         baseline_path=opt("bench_baseline", "bench_baseline"),
         history_path=history,
@@ -162,6 +237,8 @@ def make_settings(config) -> Settings:
         video_dir=opt("bench_video_dir", "bench_video_dir") or Path(config.rootpath) / "videos",
     )
     settings.no_privileged = bool(config.getoption("bench_no_privileged") or config.getini("bench_no_privileged"))
+    settings.seed = _seed(config)
+    settings.controller_params = _controller_params(config)
     robot = config.getoption("bench_robot")
     if not robot:
         ini_robot = (config.getini("bench_robot") or "").strip()
@@ -198,15 +275,22 @@ def pytest_configure(config) -> None:
     from bench.report.history import new_run_uid
 
     settings.run_uid = (workerinput or {}).get("bench_run_uid") or new_run_uid()
+    import time
+
+    settings.session_start_ns = int((workerinput or {}).get("bench_session_start_ns") or time.time_ns())
     if settings.active:
         # as bench run: a controller name that resolves to nothing is invalid input, before anything runs
         from bench.run.errors import InvalidInput
-        from bench.run.plan import check_controller
+        from bench.run.plan import check_controller, check_controller_params
 
         try:
             check_controller(settings.controller)
         except InvalidInput as exc:
             raise pytest.UsageError(f"--bench-controller: {exc}") from None
+        try:
+            check_controller_params(settings.controller, settings.controller_params)
+        except InvalidInput as exc:
+            raise pytest.UsageError(str(exc).replace("--controller-param", "--bench-controller-param")) from None
     if settings.baseline_path is not None:
         from bench.report.baseline import BaselineError, load_baseline
 
@@ -229,3 +313,4 @@ def pytest_configure(config) -> None:
 def pytest_configure_node(node) -> None:
     """pytest-xdist: every worker records its results under the session's run uid."""
     node.workerinput["bench_run_uid"] = settings_of(node.config).run_uid
+    node.workerinput["bench_session_start_ns"] = settings_of(node.config).session_start_ns

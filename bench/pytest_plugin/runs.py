@@ -192,11 +192,12 @@ def execute_plan(config, node, plan) -> list[BenchRun]:
     return runs
 
 
-def execute(config, node, scenario, controller, *, seed: int | None = None) -> BenchRun:
+def execute(config, node, scenario, controller, *, seed: int | None = None,
+            controller_params: dict | None = None) -> BenchRun:
     """Run one scenario (no trial expansion) with ``controller``; see :func:`execute_plan`."""
     from bench.run.plan import make_plan
 
-    plan = make_plan([scenario], controller=controller, seed=seed, expand=False)
+    plan = make_plan([scenario], controller=controller, seed=seed, expand=False, controller_params=controller_params)
     (run,) = execute_plan(config, node, plan)
     return run
 

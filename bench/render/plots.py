@@ -1,7 +1,8 @@
 """Per-scenario time-series plots (matplotlib, Agg back end), saved as ``plots.png`` beside ``result.json``.
 
 Panels: trunk height error, roll and pitch, velocity tracking, yaw-rate
-tracking and vertical foot forces against the carried weight. Criterion limits
+tracking and vertical foot forces against the carried weight, then one panel
+per signal the controller logged (``signal_*`` in trace.npz). Criterion limits
 are drawn as dashed lines, timed events are shaded and labelled, the unscored
 start is greyed and the first violation is marked, so that the picture says why
 the verdict is what it is.
@@ -24,6 +25,13 @@ STATUS_COLOURS = {"passed": "#1f9d48", "failed": "#d62d20", "error": "#e69a00", 
 EVENT_COLOURS = {"push": "#e74c3c", "steady_force": "#e74c3c", "attach": "#f39c12", "drop": "#f39c12",
                  "drain": "#f39c12", "mass_step": "#f39c12"}
 FOOT_COLOURS = ("#1f77b4", "#ff7f0e", "#2ca02c", "#9467bd")
+SIGNAL_COLOURS = ("#1f77b4", "#ff7f0e", "#2ca02c", "#d62728", "#9467bd", "#8c564b", "#e377c2", "#7f7f7f")
+
+
+#: Controller signals drawn, one panel each (the rest are named under the last panel).
+MAX_SIGNAL_PANELS = 4
+#: Height of one signal panel, inches.
+SIGNAL_PANEL_IN = 1.8
 
 
 def _criteria(result: dict) -> dict[str, dict]:
@@ -50,13 +58,19 @@ def plot_trace(trace, result: dict, path: str | Path, score_from: float | None =
 
     from bench.scoring.metrics import error_series
 
+    from bench.sim.signals import PREFIX, signal_names
+
     A = trace.arrays
     n = len(trace)
     path = Path(path)
-    fig = Figure(figsize=(10, 11), dpi=dpi)
-    # Fixed margins: a layout engine would cost more than all the drawing.
-    fig.subplots_adjust(left=0.1, right=0.985, top=0.935, bottom=0.05, hspace=0.1)
-    axes = fig.subplots(5, 1, sharex=True)
+    signals = signal_names(A)
+    shown = signals[:MAX_SIGNAL_PANELS]   # the controller's own signals, one panel each, after the five
+    height_in = 11 + SIGNAL_PANEL_IN * len(shown)
+    fig = Figure(figsize=(10, height_in), dpi=dpi)
+    # Fixed margins (in inches, so that extra panels do not squeeze them): a layout engine would cost
+    # more than all the drawing.
+    fig.subplots_adjust(left=0.1, right=0.985, top=1 - 0.715 / height_in, bottom=0.55 / height_in, hspace=0.1)
+    axes = fig.subplots(5 + len(shown), 1, sharex=True)
     status = str(result.get("status", "?"))
     title = f"{result.get('scenario', '?')}  \u2014  {result.get('controller', '?')}  \u2014  {status.upper()}"
     reason = result.get("reason")
@@ -122,7 +136,18 @@ def plot_trace(trace, result: dict, path: str | Path, score_from: float | None =
     ax.plot(t, ff[:, :, 2].sum(axis=1), color="black", lw=1.2, label="sum")
     ax.plot(t, A["total_mass"][s] * GRAVITY, color="black", lw=1, ls="--", label="weight m g")
     ax.set_ylabel("vertical foot\nforce [N]")
-    ax.set_xlabel("time [s]")
+
+    for ax, name in zip(axes[5:], shown):
+        values = A[PREFIX + name][s]
+        flat = values.reshape(len(values), -1)
+        for j in range(flat.shape[1]):
+            ax.plot(t, flat[:, j], lw=1.0, color=SIGNAL_COLOURS[j % len(SIGNAL_COLOURS)],
+                    label=name if flat.shape[1] == 1 else f"{name}[{j}]")
+        ax.set_ylabel(f"signal\n{name}", fontsize=9)
+    if len(signals) > len(shown):
+        axes[-1].text(0.0, -0.3, f"+{len(signals) - len(shown)} more controller signals in trace.npz: "
+                      + ", ".join(signals[len(shown):]), transform=axes[-1].transAxes, fontsize=7, color="#444")
+    axes[-1].set_xlabel("time [s]")
 
     # Context on every panel: unscored start, events, first violation.
     t_end = float(A["t"][-1])

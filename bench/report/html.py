@@ -282,6 +282,38 @@ def _metrics_details(result: dict) -> str:
             f"</tr></thead><tbody>{rows}</tbody></table></details>")
 
 
+def _signals(e: Entry) -> str:
+    """The controller's own per-tick signals (``signal_*`` in trace.npz): shape and min, mean, max, last value."""
+    names = e.result.get("controller_signals") or []
+    if not names:
+        return ""
+    rows = []
+    try:
+        import numpy as np
+
+        with np.load(e.dir / "trace.npz", allow_pickle=False) as z:
+            for name in names:
+                key = f"signal_{name}"
+                if key not in z.files:
+                    continue
+                v = np.asarray(z[key], dtype=float)
+                flat = v.reshape(len(v), -1) if len(v) else v.reshape(0, 1)
+                for j in range(flat.shape[1]):
+                    col = flat[:, j]
+                    ok = col[np.isfinite(col)]
+                    label = name if flat.shape[1] == 1 else f"{name}[{j}]"
+                    stats = (ok.min(), ok.mean(), ok.max(), col[-1]) if ok.size else (None,) * 4
+                    rows.append(f"<tr><td><code>{escape(label)}</code></td>"
+                                + "".join(f"<td class=num>{_num(x, '{:.4g}')}</td>" for x in stats) + "</tr>")
+    except (OSError, ValueError, KeyError) as exc:   # a report is made from whatever is there
+        return f"<h3>Controller signals</h3><p class=missing>trace.npz could not be read: {escape(str(exc))}</p>"
+    if not rows:
+        return ""
+    return ("<h3>Controller signals (logged by the controller each tick; <code>signal_&lt;name&gt;</code> in "
+            "trace.npz, drawn in the plots)</h3><table><thead><tr><th>signal</th><th>min</th><th>mean</th>"
+            "<th>max</th><th>last</th></tr></thead><tbody>" + "".join(rows) + "</tbody></table>")
+
+
 def _trials(summary: dict | None) -> str:
     trials = (summary or {}).get("trials") or []
     if not trials:
@@ -347,6 +379,11 @@ def render_html(entries: list[Entry], summary: dict | None, page_dir: Path, titl
                                f" ({_num(r.get('realtime_factor'), '{:.1f}x')} real time)"),
                  ("controller time per tick", f"p50 {_num(ms.get('p50'), '{:.3f}')} ms, p99 "
                                               f"{_num(ms.get('p99'), '{:.3f}')} ms, max {_num(ms.get('max'), '{:.2f}')} ms")]
+        if r.get("controller_name") and r.get("controller_name") != r.get("controller"):
+            facts.append(("controller's own name", escape(str(r["controller_name"]))))
+        if r.get("controller_params"):
+            facts.append(("controller parameters", escape(", ".join(
+                f"{k}={json.dumps(v)}" for k, v in sorted(dict(r["controller_params"]).items())))))
         if r.get("trial_of"):
             facts.append(("trial of", escape(str(r["trial_of"]))))
         if r.get("tags"):
@@ -365,7 +402,7 @@ def render_html(entries: list[Entry], summary: dict | None, page_dir: Path, titl
             + (f"<h3>Video</h3>{videos}" if videos else "")
             + f"<h3>Plots</h3>{PLOT_KEY}{plots}"
             f"<h3>Events (not told to the controller)</h3>{_events(r)}"
-            + _metrics_details(r) + "</section>")
+            + _signals(e) + _metrics_details(r) + "</section>")
     table.append("</tbody></table>")
     tail = [_trials(summary), "".join(sections),
             f'<div class="caution"><b>Caution.</b> {escape(SAFETY_CAUTION)}</div>',

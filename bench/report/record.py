@@ -57,10 +57,16 @@ KEY_DOCS = {
     "watchdog_restored": "what the watchdog put back after the controller changed it; present when it ran",
     "fingerprint": "verdict fingerprint: sha256 of everything that decided the verdict",
     "fingerprint_parts": "part name -> hash or version (`scenario`, `robot`, `controller`, `limits`, `bench`, "
-                         "`mujoco`, `numpy`), so a changed part can be named",
+                         "`mujoco`, `numpy`, and `controller_params` when parameters were given), so a changed "
+                         "part can be named",
     "result_uid": "unique id of this result (uuid4 hex), the key of its history row; a reused result keeps its own",
     "deciding": "the deciding criterion: `name`, `value`, `limit`, `margin`, `first_violation_s`, `passed` "
                 "(null for `error` and `timeout`)",
+    "controller_params": "the `--controller-param` keywords the controller was made with, name -> value; "
+                         "present when some were given",
+    "controller_name": "the controller object's own `name` attribute; present when it has one",
+    "controller_signals": "names of the per-tick signals the controller logged (`signal_<name>` in trace.npz); "
+                          "present when it logged any",
 }
 
 
@@ -93,11 +99,12 @@ def _need(data: Mapping, key: str, kind: str, where: str = "") -> Any:
         "num?": value is None or _is_num(value),
         "bool": isinstance(value, bool),
         "map": isinstance(value, Mapping),
+        "map?": value is None or isinstance(value, Mapping),
         "list": isinstance(value, (list, tuple)),
     }[kind]
     if not ok:
         want = {"str": "a string", "str?": "a string or null", "int": "an integer", "num": "a number",
-                "num?": "a number or null", "bool": "true or false", "map": "a mapping", "list": "a list"}[kind]
+                "num?": "a number or null", "bool": "true or false", "map": "a mapping", "map?": "a mapping or null", "list": "a list"}[kind]
         raise RecordError(f"{where}key {key!r} must be {want}, got {type(value).__name__} {value!r:.60}")
     return value
 
@@ -203,8 +210,8 @@ class DecidingCriterion:
 
 #: Keys written only when they have a value (their absence has always meant "not applicable").
 _OPTIONAL = ("episode_status", "score_from_s", "trace_sha256", "mujoco_warnings", "traceback", "trial_of",
-             "watchdog_restored")
-_LISTS = ("mujoco_warnings", "watchdog_restored")
+             "watchdog_restored", "controller_params", "controller_name", "controller_signals")
+_LISTS = ("mujoco_warnings", "watchdog_restored", "controller_signals")
 
 
 @dataclass(frozen=True)
@@ -241,6 +248,12 @@ class RunRecord:
     fingerprint_parts: Mapping[str, str] = field(default_factory=dict)
     result_uid: str = ""
     deciding: DecidingCriterion | None = None
+    #: the --controller-param keywords the controller was made with (present when some were given)
+    controller_params: Mapping[str, Any] | None = None
+    #: the controller object's own ``name`` attribute (present when it has one)
+    controller_name: str | None = None
+    #: names of the per-tick signals the controller logged (``signal_<name>`` in trace.npz)
+    controller_signals: tuple[str, ...] | None = None
     #: keys of the file this bench does not know (written by a newer one, or by a plugin); kept as they are
     extra: Mapping[str, Any] = field(default_factory=dict)
 
@@ -320,7 +333,8 @@ class RunRecord:
             raise RecordError("key 'fingerprint_parts' must be a mapping")
         for key, kind in (("content_hash", "str?"), ("episode_status", "str?"), ("score_from_s", "num?"),
                           ("trace_sha256", "str?"), ("traceback", "str?"), ("trial_of", "str?"),
-                          ("fingerprint", "str?"), ("result_uid", "str?")):
+                          ("fingerprint", "str?"), ("result_uid", "str?"), ("controller_name", "str?"),
+                          ("controller_params", "map?")):
             if key in data:
                 _need(data, key, kind)
         warnings = data.get("mujoco_warnings")
@@ -359,6 +373,10 @@ class RunRecord:
             fingerprint_parts={str(k): str(v) for k, v in parts.items()},
             result_uid=data.get("result_uid") or "",
             deciding=DecidingCriterion.from_json(data.get("deciding")),
+            controller_params=None if data.get("controller_params") is None else dict(data["controller_params"]),
+            controller_name=data.get("controller_name"),
+            controller_signals=None if data.get("controller_signals") is None
+            else tuple(str(s) for s in data["controller_signals"]),
             extra={k: v for k, v in data.items() if k not in known},
         )
 

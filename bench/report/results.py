@@ -23,6 +23,8 @@ from bench.report.record import REQUIRED_KEYS, RecordError, RunRecord, as_record
 RESULT_KEYS = REQUIRED_KEYS
 #: Trace arrays that depend on the wall clock, left out of the trace digest.
 UNTIMED_EXCLUDE = ("controller_ms",)
+#: Trace keys of the signals a controller logs (``bench.sim.signals``); left out of ``trace_sha256``.
+SIGNAL_PREFIX = "signal_"
 
 
 def _clean(x):
@@ -118,7 +120,9 @@ def write_summary(out_dir: Path, entries: list[tuple[str, dict]], trials: list[d
 
 
 def trace_digest(arrays) -> str:
-    """SHA-256 of a trace's arrays (names, dtypes, shapes and bytes, in name order), without the timing ones.
+    """SHA-256 of a trace's arrays (names, dtypes, shapes and bytes, in name order), without the timing ones
+    and without the controller's own signals (``signal_*``: what it reports about itself, not what the bench
+    measured; a controller that starts logging one keeps its digests).
 
     Two episodes with the same scenario, seed and controller give the same digest (the bench is
     deterministic); the npz file's own bytes differ (zip entries carry a timestamp).
@@ -127,7 +131,7 @@ def trace_digest(arrays) -> str:
 
     h = hashlib.sha256()
     for key in sorted(arrays):
-        if key in UNTIMED_EXCLUDE:
+        if key in UNTIMED_EXCLUDE or key.startswith(SIGNAL_PREFIX):   # signals: the controller's own account
             continue
         a = np.ascontiguousarray(arrays[key])
         h.update(f"{key}|{a.dtype.str}|{a.shape}|".encode())

@@ -38,7 +38,77 @@ def _private_copy(manifest: RobotManifest) -> RobotManifest:
 
 
 class NominalRobot:
-    """Robot-only model (floating base, gravity on, no floor) and resolved ids, manifest order."""
+    """Robot-only model (floating base, gravity on, no floor) and resolved ids, manifest order.
+
+    What a controller gets in ``reset(robot, control_dt)``. The attributes below are the stable public
+    API (a test checks that each exists with the type stated); arrays are read-only. ``J`` is the number
+    of joints (manifest ``joints`` order, which is also the order of ``Observation.joint_pos`` and of the
+    torques ``step`` returns) and ``F`` the number of feet (manifest ``feet`` order, as
+    ``Observation.foot_contact``). Ids index the arrays of ``model`` (and of an ``MjData`` made from it);
+    they are not valid in the simulated world's model, which the controller never sees.
+
+    Attributes
+    ----------
+    manifest : RobotManifest
+        A private, frozen copy of the robot manifest (names, limits, pose); changing it changes nothing else.
+    model : MjModel
+        The robot-only MuJoCo model compiled from the robot's MJCF (dense Jacobians, no floor): for the
+        controller's own kinematics and dynamics (``mj_kinematics``, ``mj_jac``, ``mj_rne``...).
+    mass_kg : float
+        Total mass of the model, kg (``mj_getTotalmass``); payloads are not included.
+    trunk_body_id : int
+        Body id of the trunk (the body with the free joint).
+    trunk_qpos_adr : int
+        First of the trunk's 7 ``qpos`` entries: position (3, m, world) then quaternion (w, x, y, z).
+    trunk_dof_adr : int
+        First of the trunk's 6 ``qvel`` entries: linear velocity (3, m/s, world) then angular (3, rad/s, body).
+    imu_site_id : int
+        Site id of the IMU (manifest ``imu_site``).
+    sensor_ids : dict[str, int]
+        Sensor id per role (``orientation``, ``gyro``, ``accelerometer``).
+    sensor_adr : dict[str, int]
+        First ``sensordata`` index per role.
+    joint_ids : ndarray[int64] (J,)
+        Joint ids, manifest order.
+    joint_qpos_adr : ndarray[int64] (J,)
+        ``qpos`` index of each joint.
+    joint_dof_adr : ndarray[int64] (J,)
+        ``qvel``/``qfrc`` index of each joint.
+    joint_range : ndarray[float64] (J, 2)
+        Lower and upper joint limit, rad (meaningful where ``joint_limited``).
+    joint_limited : ndarray[bool] (J,)
+        Whether each joint has a range.
+    actuator_ids : ndarray[int64] (J,)
+        Actuator id driving each joint (manifest ``actuators``).
+    foot_site_ids : ndarray[int64] (F,)
+        Site id of each foot's contact point.
+    foot_geom_ids : ndarray[int64] (F,)
+        Geom id of each foot (the one whose contacts count as foot contacts).
+    fall_geom_ids : ndarray[int64] (G,)
+        Geoms whose touching the ground is a fall.
+    torque_limits : ndarray[float64] (J,)
+        Largest absolute torque per joint, N m; the runner clips to it (or to less, under a derate fault).
+    nominal_pose : ndarray[float64] (J,)
+        Standing joint angles, rad.
+    nominal_height : float
+        Reference standing height of the trunk origin above flat ground, m: the manifest's value, against
+        which the height criteria measure (for quad12 a settled stand with a joint PD; see the docs'
+        criteria section for its spread).
+    nominal_qpos : ndarray[float64] (nq,)
+        Full ``qpos``: trunk upright at ``nominal_height`` above the origin, joints at ``nominal_pose``.
+    trunk_inertia_body : ndarray[float64] (3, 3)
+        Whole-robot inertia about its centre of mass in the trunk frame at ``nominal_qpos``, kg m^2.
+    com_offset_trunk : ndarray[float64] (3,)
+        Whole-robot centre of mass relative to the trunk origin in the trunk frame at ``nominal_qpos``, m.
+    num_joints : int
+        ``J`` (a property).
+    num_feet : int
+        ``F`` (a property).
+    sensing : object, optional
+        A ``SensingInfo``: what the controller senses beyond the standard observation (whether the true
+        state is given, the height-scan points, the foot-force mode, joint torques), from the scenario's
+        ``sensing:`` key, set before ``reset``; the defaults (true state given, nothing else) otherwise.
+    """
 
     def __init__(self, manifest: RobotManifest):
         # A private copy: a controller that changes its manifest (even with object.__setattr__)
@@ -72,7 +142,7 @@ class NominalRobot:
         self.torque_limits = np.array(manifest.torque_limits, dtype=float)
         self.nominal_pose = np.array(manifest.nominal_pose, dtype=float)
         self.nominal_height = float(manifest.nominal_height)
-        for arr in (self.joint_qpos_adr, self.joint_dof_adr, self.joint_range, self.joint_limited,
+        for arr in (self.joint_ids, self.joint_qpos_adr, self.joint_dof_adr, self.joint_range, self.joint_limited,
                     self.actuator_ids, self.foot_site_ids, self.foot_geom_ids, self.fall_geom_ids,
                     self.torque_limits, self.nominal_pose):
             arr.setflags(write=False)
@@ -132,37 +202,27 @@ class NominalRobot:
                 f"feet={self.num_feet}, mass_kg={self.mass_kg:.3f})")
 
 
-#: What each public attribute of `NominalRobot` holds (published by `python -m bench.docgen` in
-#: docs/reference/controller-api.md; a test checks that every attribute has an entry). Arrays are read-only
-#: and in manifest order; ids index the robot-only `model`.
-ATTRIBUTE_DOCS = {
-    "manifest": "the robot manifest (a private copy)",
-    "model": "robot-only MuJoCo model: floating base, gravity on, no floor, no payloads",
-    "mass_kg": "total mass, kg (mj_getTotalmass)",
-    "trunk_body_id": "body id of the trunk",
-    "trunk_qpos_adr": "qpos address of the trunk's free joint: position (3), then quaternion w x y z (4)",
-    "trunk_dof_adr": "dof address of the trunk's free joint: linear velocity world (3), angular velocity body (3)",
-    "imu_site_id": "site id of the IMU",
-    "sensor_ids": "IMU role (orientation, gyro, accelerometer) -> sensor id",
-    "sensor_adr": "IMU role -> address in sensordata",
-    "joint_ids": "joint ids (J,)",
-    "joint_qpos_adr": "qpos address of each joint (J,)",
-    "joint_dof_adr": "dof address of each joint (J,)",
-    "joint_range": "joint limits (J, 2), rad",
-    "joint_limited": "whether each joint has limits (J,)",
-    "actuator_ids": "actuator id of each joint's motor (J,)",
-    "foot_site_ids": "site id of each foot (F,)",
-    "foot_geom_ids": "geom id of each foot (F,)",
-    "fall_geom_ids": "geoms whose ground contact is a fall",
-    "torque_limits": "motor torque limits (J,), N m (the manifest's; a derate fault lowers what is applied)",
-    "nominal_pose": "standing joint angles (J,), rad",
-    "nominal_height": "trunk origin height above flat ground when standing, m",
-    "nominal_qpos": "full qpos of the robot standing at nominal_height above the origin",
-    "trunk_inertia_body": "whole-robot inertia about its centre of mass, trunk frame (3, 3), kg m^2",
-    "com_offset_trunk": "whole-robot centre of mass relative to the trunk origin, trunk frame (3,), m",
-    "num_joints": "J, the number of joints",
-    "num_feet": "F, the number of feet",
-    "sensing": "what the controller senses beyond the standard observation (`SensingInfo`): whether the true "
-               "state is given, the height-scan points, the foot-force mode, joint torques; from the "
-               "scenario's `sensing:` key, set before `reset`",
-}
+def _attribute_section(doc: str) -> dict[str, tuple[str, str]]:
+    """``name -> (type, meaning)`` from the Attributes section of a numpy-style docstring."""
+    import inspect
+    import re
+
+    section = inspect.cleandoc(doc).split("Attributes\n----------\n", 1)[1]
+    out: dict[str, list[str]] = {}
+    name = None
+    for line in section.splitlines():
+        head = re.match(r"^(\w+) : (.+)$", line)
+        if head:
+            name = head[1]
+            out[name] = [head[2], ""]
+        elif name and line.strip():
+            out[name][1] = (out[name][1] + " " + line.strip()).strip()
+    return {k: (t, m) for k, (t, m) in out.items()}
+
+
+#: What each public attribute of `NominalRobot` holds and its declared type (``ndarray[int64] (J,)``),
+#: read from its docstring's Attributes section, the one place they are written. Published by
+#: `python -m bench.docgen` in docs/reference/controller-api.md; tests check that every attribute has an
+#: entry and has the type stated.
+ATTRIBUTE_TYPES = {k: t for k, (t, _) in _attribute_section(NominalRobot.__doc__).items()}
+ATTRIBUTE_DOCS = {k: m for k, (_, m) in _attribute_section(NominalRobot.__doc__).items()}

@@ -12,7 +12,9 @@ hashes each input into a named part, and the parts into one digest:
 - ``bench``: the package version and a hash of its Python source;
 - ``mujoco`` and ``numpy``: their versions (both change the numbers);
 - ``limits``: the wall-clock limits that can end an episode as ``timeout``;
-- ``controller``: what the controller spec resolves to (see ``controller_identity``).
+- ``controller``: what the controller spec resolves to (see ``controller_identity``);
+- ``controller_params``: the ``--controller-param`` keywords, present only when some were given
+  (so a run without any keeps the fingerprint it always had).
 
 Parts are sha256 hex digests, except ``mujoco`` and ``numpy``, which are
 version strings. No absolute path enters a part (except one written in an
@@ -44,6 +46,8 @@ FORMAT = 1
 
 #: The parts, in the order they are reported.
 PARTS = ("scenario", "robot", "controller", "limits", "bench", "mujoco", "numpy")
+#: Parts present only when they apply (``controller_params``: when ``--controller-param`` was given).
+OPTIONAL_PARTS = ("controller_params",)
 
 SETTLE_NS = 2_000_000_000
 _lock = threading.Lock()
@@ -64,7 +68,7 @@ class Fingerprint:
         return {"fingerprint": self.digest, "fingerprint_parts": dict(self.parts)}
 
 
-def verdict_fingerprint(scenario, controller_spec: str, limits) -> Fingerprint:
+def verdict_fingerprint(scenario, controller_spec: str, limits, controller_params: dict | None = None) -> Fingerprint:
     """The fingerprint of one episode: ``scenario`` (a validated Scenario), the controller spec as
     given to ``--controller`` (``sealed:``/``exec:`` prefixes included), and the episode limits
     (an ``EpisodeLimits``, a mapping, or None)."""
@@ -80,11 +84,14 @@ def verdict_fingerprint(scenario, controller_spec: str, limits) -> Fingerprint:
         "mujoco": str(mujoco.__version__),
         "numpy": str(numpy.__version__),
     }
+    if controller_params:
+        parts["controller_params"] = _sha(_canonical(controller_params))
     return Fingerprint(_sha(_canonical({"format": FORMAT, "parts": parts})), parts)
 
 
 #: Each part in words, for messages ("made with another robot model").
 PART_NOUNS = {"scenario": "scenario content", "robot": "robot model", "controller": "controller code",
+              "controller_params": "set of controller parameters",
               "limits": "limits", "bench": "bench code", "mujoco": "MuJoCo version", "numpy": "NumPy version"}
 
 
@@ -100,7 +107,7 @@ def stale_reason(result: dict, fp: Fingerprint) -> str:
     if digest == fp.digest:
         return ""
     old = parts if isinstance(parts, dict) else {}
-    changed = [PART_NOUNS.get(k, k) for k in PARTS if old.get(k) != fp.parts.get(k)]
+    changed = [PART_NOUNS.get(k, k) for k in PARTS + OPTIONAL_PARTS if old.get(k) != fp.parts.get(k)]
     if not changed:
         return "result.json was made with other inputs (its verdict fingerprint differs)"
     words = changed[0] if len(changed) == 1 else ", ".join(changed[:-1]) + " and " + changed[-1]

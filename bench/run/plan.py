@@ -47,6 +47,7 @@ class Plan:
     groups: list = field(default_factory=list)   # bench.execute.trials.TrialGroup
     controller: object = "force-qp-l1"             # a spec string, a factory or a controller object
     limits: object = None                          # bench.sim.episode.EpisodeLimits
+    controller_params: dict = field(default_factory=dict)   # --controller-param keywords for the factory
 
     def __len__(self) -> int:
         return len(self.episodes)
@@ -56,7 +57,8 @@ class Plan:
         from bench.sim.episode import EpisodeLimits
 
         limits = self.limits if self.limits is not None else EpisodeLimits()
-        return [Job(e.scenario, self.controller, e.seed, limits) for e in self.episodes]
+        return [Job(e.scenario, self.controller, e.seed, limits, dict(self.controller_params))
+                for e in self.episodes]
 
     @property
     def controller_name(self) -> str | None:
@@ -89,6 +91,25 @@ def check_controller(spec) -> None:
         raise InvalidInput(f"controller {spec!r} cannot be resolved: {type(exc).__name__}: {exc}") from None
 
 
+def check_controller_params(spec, params: dict | None) -> None:
+    """Raise :class:`InvalidInput` when ``params`` has a key the controller's factory does not take."""
+    if not params:
+        return
+    from bench.controllers import registry
+    from bench.controllers.params import ControllerParamError, check_params
+
+    try:
+        if isinstance(spec, str):
+            registry.check_params(spec, params)
+        elif not (hasattr(spec, "step") and hasattr(spec, "reset")):
+            check_params(spec, params, getattr(spec, "__name__", "custom"))
+        else:
+            raise ControllerParamError("controller parameters need a controller name or a factory, "
+                                       "not an already made controller")
+    except ControllerParamError as exc:
+        raise InvalidInput(str(exc)) from None
+
+
 def _unknown_controller_message(spec: str, registry_text: str) -> str:
     from bench.controllers import registry
 
@@ -110,7 +131,7 @@ def _unknown_controller_message(spec: str, registry_text: str) -> str:
 
 
 def make_plan(scenarios: list, *, controller, limits=None, seed: int | None = None, only=(),
-              where: str = "", expand: bool = True) -> Plan:
+              where: str = "", expand: bool = True, controller_params: dict | None = None) -> Plan:
     """Plan ``scenarios``: resolve the controller, expand trials, select ``only``, fingerprint each episode.
 
     ``expand=False`` takes the scenarios as the episodes (a caller that made its own trials).
@@ -119,6 +140,7 @@ def make_plan(scenarios: list, *, controller, limits=None, seed: int | None = No
     from bench.execute import trials as trials_mod
 
     check_controller(controller)
+    check_controller_params(controller, controller_params)
     if expand:
         scs, seeds, groups = trials_mod.plan(list(scenarios), seed)
     else:
@@ -131,7 +153,7 @@ def make_plan(scenarios: list, *, controller, limits=None, seed: int | None = No
                                + (f" in {where}" if where else "") + _close_ids(unknown, all_ids))
     trial_of = {i: g.scenario for g in groups for i in g.indices}
     plan = Plan([PlannedEpisode(i, sc, sd, trial_of.get(i)) for i, (sc, sd) in enumerate(zip(scs, seeds))],
-                groups, controller, limits)
+                groups, controller, limits, dict(controller_params or {}))
     fingerprint_plan(plan)
     return plan
 
@@ -141,7 +163,7 @@ def fingerprint_plan(plan: Plan) -> None:
 
     spec = controller_spec(plan.controller)
     for e in plan.episodes:
-        e.fingerprint = verdict_fingerprint(e.scenario, spec, plan.limits)
+        e.fingerprint = verdict_fingerprint(e.scenario, spec, plan.limits, plan.controller_params)
 
 
 def _close_ids(unknown: list[str], ids: list[str]) -> str:

@@ -40,6 +40,7 @@ from bench.fieldspec import (  # noqa: F401 - re-exported: the schema's declarat
     spec,
 )
 from bench.fieldspec import frozen as _frozen
+from bench.gaits import GAIT_HINTS
 
 Vec3 = tuple[float, float, float]
 Range2 = tuple[float, float]
@@ -423,6 +424,9 @@ class Command:
     vx: float = spec(0.0, doc="forward velocity", unit="m/s", ge=-10.0, le=10.0)
     vy: float = spec(0.0, doc="sideways velocity", unit="m/s", ge=-10.0, le=10.0)
     yaw_rate: float = spec(0.0, doc="turn rate", unit="rad/s", ge=-20.0, le=20.0)
+    gait: Literal[GAIT_HINTS] | None = spec(
+        None, doc="gait hint handed to the controller (obs.gait_hint), held until a later command sets "
+                  "another; a controller may ignore it", default_doc="the previous command's hint; none at first")
 
 
 def _commands_sorted(items: list[tuple[int, Any]]) -> Iterator[Problem]:
@@ -537,7 +541,12 @@ DEFAULT_SCORE_FROM_S = 0.5
 
 
 def _parse_criteria(v: Any, raw: Any, path: tuple) -> Any:
-    """criterion name -> limit, checked against the criteria registry (`bench.scenario.criteria`)."""
+    """criterion name -> limit, checked against the criteria registry (`bench.scenario.criteria`).
+
+    A criterion whose limit is not a number or true/false (the gait windows of ``gait``) converts and checks it
+    itself: its ``parse(validator, raw, path)`` returns the value or ``validator.INVALID`` after reporting, and
+    its ``json_schema()`` gives the JSON Schema of that value.
+    """
     if raw is None:
         return {}
     if not isinstance(raw, dict):
@@ -558,6 +567,13 @@ def _parse_criteria(v: Any, raw: Any, path: tuple) -> Any:
             ok = False
             continue
         if value is None:  # lets a file that extends another drop an inherited criterion
+            continue
+        if callable(getattr(info, "parse", None)):   # a criterion whose limit is not one number (gait windows)
+            got = info.parse(v, value, p)
+            if got is v.INVALID:
+                ok = False
+            else:
+                out[name] = got
             continue
         if getattr(info, "boolean", False):
             if not isinstance(value, bool):
@@ -580,7 +596,9 @@ def _criteria_json() -> dict:
     for name, info in all_criteria().items():
         unit = unit_of(info)
         desc = str(getattr(info, "description", "")) + (f" [{unit}]" if unit else "")
-        if getattr(info, "boolean", False):
+        if callable(getattr(info, "json_schema", None)):
+            props[name] = info.json_schema()
+        elif getattr(info, "boolean", False):
             props[name] = {"description": desc, "type": ["boolean", "null"]}
         else:
             s: dict[str, Any] = {"description": desc, "type": ["number", "null"]}

@@ -2,7 +2,15 @@
 
 Conventions:
 - trunk height error: trunk origin height above the ground under it, minus the
-  robot's nominal standing height;
+  robot's nominal standing height (the manifest's ``nominal_height``). For quad12
+  that is a measurement, 0.294 m: a settled stand on flat ground with the joints
+  held at the nominal pose by a joint PD (kp 200 N m/rad, kd 3 N m s/rad). The
+  kinematic height of the nominal pose (lowest foot point on the ground) is 4.7 mm
+  higher, and a controller that holds the nominal angles stiffly stands up to about
+  4 mm high (kp 1000: +3.3 mm, kp 3000: +3.7 mm; kp 100: -3.8 mm; the reference
+  stacks, which servo the trunk to ``nominal_height``: -0.7 mm), about 8 % of a
+  5 cm ``height_error_max`` before it does anything wrong
+  (``python tests/benchmarks/bench_nominal_height.py`` prints the table);
 - roll and pitch error: trunk roll and pitch (intrinsic z-y-x Euler angles of the
   trunk orientation) against a level trunk, in degrees;
 - drift: horizontal distance from the position at ``score_from`` over ticks whose

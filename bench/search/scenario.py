@@ -24,7 +24,7 @@ class ScenarioPredicate:
 
     def __init__(self, scenario, path: str, *, controller: str, executor, limits=None, trials: int | None = None,
                  required: float | None = None, seed: int | None = None, out_dir: str | Path | None = None,
-                 on_outcome=None):
+                 on_outcome=None, controller_params: dict | None = None):
         from bench.scenario.compose import derive
         from bench.scenario.trials import expand_trials
 
@@ -38,6 +38,7 @@ class ScenarioPredicate:
         self.path = path
         self.label = path.split(".")[-1]
         self.controller = controller
+        self.controller_params = dict(controller_params or {})   # --controller-param keywords
         self.executor = executor
         self.limits = limits
         self.trial_scenarios = expand_trials(base) if is_trial_scenario(base) else [base]
@@ -88,7 +89,8 @@ class ScenarioPredicate:
         groups = [self.scenarios_at(v) for v in values]
         flat = [(gi, sc) for gi, g in enumerate(groups) for sc in g]
         # the same run path as bench run: the trials at each value are this plan's episodes
-        plan = make_plan([sc for _, sc in flat], controller=self.controller, limits=self.limits, expand=False)
+        plan = make_plan([sc for _, sc in flat], controller=self.controller, limits=self.limits, expand=False,
+                         controller_params=self.controller_params)
         sinks: list = []
         if self.out_dir is not None:
             sinks.append(run_sinks.ResultFiles(self.out_dir))

@@ -2,8 +2,9 @@
 
 Built once per episode from the world's geom ids. Every geom falls in a small
 class (terrain or not, which foot if any, fall geom or not), and a class-by-class
-table says what a contact between two classes means, so a tick costs one list
-lookup per contact and no numpy call per contact. Only foot-ground contacts
+table says what a contact between two classes means, so classifying costs one list
+lookup per contact and no numpy call per contact; a sequence of geom pairs seen
+before (a stance keeps its contacts) is not classified again. Only foot-ground contacts
 (usually two to four) get any further work, and only when there are some.
 
 The ground reaction force on a foot is MuJoCo's own contact force
@@ -21,6 +22,8 @@ import numpy as np
 
 #: Contact distance below which a foot counts as touching, m.
 CONTACT_DIST_M = 0.002
+#: Classified geom-pair sequences kept per table (cleared when full; rough ground makes many).
+MAX_PLANS = 4096
 
 
 class ContactTable:
@@ -57,6 +60,8 @@ class ContactTable:
             self.table.append(row)
         self.is_ground, self.is_fall = is_ground, is_fall
         self._found: list[tuple[int, float, int]] = []   # (contact, sign, foot) of this instant's foot contacts
+        self._plans: dict[bytes, tuple[list, list, list]] = {}   # geom pairs' bytes -> _plan of them
+        self._frames: list[list[float]] = []             # this instant's contact frames, when there are foot contacts
         self._cf = np.zeros(6)
         n_feet = len(foot_geom_ids)
         self._zeros = [0.0] * (3 * n_feet)
@@ -64,28 +69,52 @@ class ContactTable:
 
     def classify(self, d: mujoco.MjData, foot_contact: np.ndarray) -> bool:
         """Mark feet touching the ground in ``foot_contact`` (cleared by the caller); True on a fall contact."""
-        found = self._found
-        found.clear()
         if not d.ncon:
+            self._found = []
             return False
         con = d.contact
-        cls, table = self.geom_class, self.table
-        dist = None
+        geom = con.geom
+        # The same sequence of geom pairs recurs tick after tick (a stance holds its contacts), so its
+        # classification is kept by the pairs' bytes; only the distances are looked at every tick.
+        key = geom.tobytes()
+        plan = self._plans.get(key)
+        if plan is None:
+            plan = self._plan(geom.tolist())
+            if len(self._plans) >= MAX_PLANS:
+                self._plans.clear()
+            self._plans[key] = plan
+        feet, falls, found = plan
+        self._found = found
+        if not found and not falls:
+            return False
+        dist = con.dist.tolist()
         fell = False
-        for i, (g1, g2) in enumerate(con.geom.tolist()):
+        for i in falls:
+            if dist[i] < 0:
+                fell = True
+        for i, foot in feet:
+            if dist[i] < CONTACT_DIST_M:
+                foot_contact[foot] = True
+        if found:   # the frames come from collision, which mj_step2 does not redo: read them once, here
+            self._frames = con.frame.tolist()
+        return fell
+
+    def _plan(self, pairs: list[list[int]]) -> tuple[list, list, list]:
+        """For one sequence of contact geom pairs: (contact, foot) of foot-ground contacts, contacts that are a
+        fall if they penetrate, and (contact, sign, foot) of the foot-ground contacts for the force scan."""
+        cls, table = self.geom_class, self.table
+        feet, falls, found = [], [], []
+        for i, (g1, g2) in enumerate(pairs):
             hit = table[cls[g1]][cls[g2]]
             if hit is None:
                 continue
-            if dist is None:
-                dist = con.dist.tolist()
             foot, fall, sign, force_foot = hit
-            if fall and dist[i] < 0:
-                fell = True
+            if fall:
+                falls.append(i)
             if foot >= 0:
+                feet.append((i, foot))
                 found.append((i, sign, force_foot))
-                if dist[i] < CONTACT_DIST_M:
-                    foot_contact[foot] = True
-        return fell
+        return feet, falls, found
 
     def fall_parts(self, m: mujoco.MjModel, d: mujoco.MjData) -> str:
         """Which part of the robot touched what, for the fall reason (called once, when the robot fell)."""
@@ -102,11 +131,12 @@ class ContactTable:
         return "a fall geom touched the ground"
 
     def forces(self, m: mujoco.MjModel, d: mujoco.MjData, out: np.ndarray) -> None:
-        """Write each foot's summed contact force (world axes) into ``out`` (F, 3, zeros), if any foot touches."""
+        """Write each foot's summed contact force (world axes) into ``out`` ((F, 3) or flat (3F,), zeros), if any
+        foot touches. Reads the contact frames ``classify`` took at this instant."""
         found = self._found
         if not found:
             return
-        frames = d.contact.frame
+        frames = self._frames
         cf = self._cf
         acc = self._acc
         acc[:] = self._zeros
@@ -115,13 +145,16 @@ class ContactTable:
             c0, c1, c2, _, _, _ = cf.tolist()
             if sign < 0.0:   # -(a b + c d + e f) == (a (-b) + c (-d) + e (-f)) exactly: rounding is symmetric
                 c0, c1, c2 = -c0, -c1, -c2
-            f0, f1, f2, f3, f4, f5, f6, f7, f8 = frames[i].tolist()
+            f0, f1, f2, f3, f4, f5, f6, f7, f8 = frames[i]
             j = 3 * foot
             # frame.T @ cf[:3], added to a zeroed row, in a matrix-vector product's own order
             acc[j] += f0 * c0 + f3 * c1 + f6 * c2
             acc[j + 1] += f1 * c0 + f4 * c1 + f7 * c2
             acc[j + 2] += f2 * c0 + f5 * c1 + f8 * c2
-        out.reshape(-1)[:] = acc
+        if out.ndim == 1:   # a flat (3F,) row: no reshape view to make
+            out[:] = acc
+        else:
+            out.reshape(-1)[:] = acc
 
     def normal_forces(self, m: mujoco.MjModel, d: mujoco.MjData, out: np.ndarray) -> None:
         """Each foot's summed normal contact force, N, into ``out`` (F,), over the contacts ``classify`` found.

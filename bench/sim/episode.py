@@ -55,9 +55,12 @@ import mujoco
 import numpy as np
 
 from bench.controllers.base import Observation
+from bench.controllers.seeding import reset_kwargs
 from bench.faults import FaultContext
+from bench.gaits import GAIT_HINT_NAMES, gait_code
 from bench.sim.contacts import CONTACT_DIST_M, ContactTable
 from bench.sim.interrupts import UserInterrupts, raised_reason
+from bench.sim.signals import SignalError, SignalRecorder
 from bench.sim.events import Event, compile_forces, compile_masses, fault_events
 from bench.sim.faults import compile_faults
 from bench.sim.sensing import compile_sensing, sensing_info
@@ -180,6 +183,9 @@ class _Watchdog:
             return
         self.active = False
         self.call_start = 0.0
+        # Ignore first, then cancel, then restore: an alarm already on its way when the timer is
+        # cancelled must not reach a default handler (which would end the process).
+        signal.signal(signal.SIGALRM, signal.SIG_IGN)
         signal.setitimer(signal.ITIMER_REAL, 0.0, 0.0)
         signal.signal(signal.SIGALRM, self._previous if self._previous is not None else signal.SIG_DFL)
 
@@ -396,6 +402,15 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     cmd_vals = np.array([[c.vx, c.vy, c.yaw_rate] for c in scenario.commands] or [[0.0, 0.0, 0.0]])
     cmd_index = np.clip(np.searchsorted(cmd_times, np.arange(n_ticks) * ctrl_dt + 1e-9, side="right") - 1, 0, None)
     cmd_rows = cmd_vals[cmd_index]
+    # Gait hints: each held from the command that sets one until a later command sets another (code 0: none).
+    # Recorded (column gait_hint) only when the scenario gives one, so other traces keep their digests.
+    hint_codes, held = [], 0
+    for c in scenario.commands:
+        held = gait_code(c.gait) if getattr(c, "gait", None) is not None else held
+        hint_codes.append(held)
+    has_hints = any(hint_codes)
+    hint_rows = np.array(hint_codes or [0], dtype=np.int8)[cmd_index]
+    hint_of = [None if code == 0 else GAIT_HINT_NAMES[code] for code in range(len(GAIT_HINT_NAMES))]
     # Payload mass changes, tick -> [(payload index, new mass)]: the schedules evaluated once, up front.
     mass_changes: dict[int, list[tuple[int, float]]] = {}
     for ms in mass_scheds:
@@ -407,9 +422,13 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 before = mass
     fall_z = FALL_HEIGHT_FRACTION * world.robot.nominal_height
     # Ground level along the path at 1 cm for the per-tick fall check (the exact query is vectorised after).
-    ground_at = world.terrain.ground_table(TABLE_PER_M).at
+    ground_table = world.terrain.ground_table(TABLE_PER_M)
+    ground_at = ground_table.at
+    # Flat ground (most scenarios): the table holds one level, so the per-tick lookup is a constant.
+    flat_ground = float(ground_table.heights[0]) if np.all(ground_table.heights == ground_table.heights[0]) else None
     fatal_idx = np.array([int(w) for w in FATAL_WARNINGS])
     applied_buf = np.zeros(J)
+    neg_limit = -limit_now   # refreshed whenever a fault may have changed limit_now
     f_active = np.zeros(len(forces.k0), dtype=bool)
     R = np.zeros(9)
     ext_now = np.zeros(3)
@@ -422,6 +441,8 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     q_base, v_base = qpos[qa:qa + 3], qvel[va:va + 3]
     xquat_trunk = d.xquat[trunk]
     feet_s, act_s = _as_slice(feet_sites), _as_slice(act)
+    # Torques are clipped straight into MjData's ctrl when the actuators are one range (a view), else via a buffer.
+    ctrl_act = d.ctrl[act_s] if isinstance(act_s, slice) else None
     site_xpos, xipos = d.site_xpos, d.xipos
     warn_number = d.warning.number
     no_warnings = bytes(warn_number.nbytes)   # a bytes comparison is cheaper than a numpy reduction
@@ -429,7 +450,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     # (joints, base, centre of mass) is taken out after the episode, vectorised.
     R_qpos, R_quat, R_feet, R_contact = A["qpos"], A["base_quat"], A["foot_pos"], A["foot_contact"]
     R_payload, R_torque, R_limit, R_ext = A["payload_mass"], A["joint_torque"], A["torque_limit"], A["ext_force"]
-    R_force = A["foot_force"]
+    R_force = A["foot_force"].reshape(n_ticks, -1)   # flat (3F,) rows, a view
     R_qvel = np.zeros((n_ticks, m.nv))
     R_xipos = np.zeros((n_ticks, m.nbody, 3))
 
@@ -467,7 +488,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     watchdog.call_limit_s = math.inf
     c0 = watchdog.call_start = time.perf_counter()
     try:
-        controller.reset(robot, ctrl_dt)
+        controller.reset(robot, ctrl_dt, **reset_kwargs(controller, seed))   # + seed/rng if it takes them
         watchdog.call_start = 0.0
     except _ControllerHung as hung:
         watchdog.call_start = 0.0
@@ -488,6 +509,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     watchdog.call_limit_s = watchdog.tick_limit_s
     tick_limit_s = watchdog.tick_limit_s
     deadline = watchdog.deadline
+    signals = SignalRecorder.attach(controller, n_ticks)   # None (nothing per tick) unless it logs signals
 
     def apply_forces(step: int) -> None:
         d.xfrc_applied[trunk, :] = 0.0
@@ -506,6 +528,9 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
             d.xfrc_applied[trunk, 3:] += np.cross(pt - d.xipos[trunk], f)
             ext_now[:] += f
 
+    # Module attributes the tick uses, bound once.
+    perf_counter, mj_step1, mj_step2, mj_step = time.perf_counter, mujoco.mj_step1, mujoco.mj_step2, mujoco.mj_step
+    more_substeps = range(substeps - 1)
     cpu0 = time.process_time()
     wall0 = time.perf_counter()
     step = 0
@@ -525,10 +550,11 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                     payload_mass[i] = mass
             if k == faults.next_tick:   # faults switching on (derated limits, a lock's constraint...)
                 faults.switch(k)
+                np.negative(limit_now, out=neg_limit)
 
             if has_forces:
                 apply_forces(step)
-            mujoco.mj_step1(m, d)
+            mj_step1(m, d)
 
             # Contacts of this instant, then the controller's observation: sensors, joints, contacts.
             foot_contact[:] = False
@@ -544,9 +570,12 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 if privileged:
                     ctrl_obs.privileged.base_pos[:] = q_base
                     ctrl_obs.privileged.base_linvel[:] = v_base
+                if has_hints:
+                    ctrl_obs.gait_hint = hint_of[hint_rows[k]]
             except Exception:  # noqa: BLE001 - the controller replaced an array or the privileged part
                 ctrl_obs = _fresh_observation(J, F, t, s_quat, s_gyro, s_accel, qpos[jq_s], qvel[jv_s],
-                                              foot_contact, q_base if privileged else None, v_base)
+                                              foot_contact, q_base if privileged else None, v_base,
+                                              hint_of[hint_rows[k]])
             if sensors is not None:
                 sensors.observe(k, ctrl_obs)
             # The true state of this instant (before any sensor fault).
@@ -563,7 +592,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
             ctrl_command[:] = cmd_rows[k]
 
             # The controller.
-            c0 = watchdog.call_start = time.perf_counter()
+            c0 = watchdog.call_start = perf_counter()
             try:
                 tau = controller.step(ctrl_obs, ctrl_command)
                 watchdog.call_start = 0.0
@@ -579,7 +608,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 status = "timeout" if isinstance(exc, TimeoutError) else "error"   # e.g. an external program's wait
                 reason = raised_reason(exc, f"at tick {k} (t={t:.3f} s)")
                 break
-            c1 = time.perf_counter()
+            c1 = perf_counter()
             ctrl_ms[k] = (c1 - c0) * 1e3
             if c1 - watchdog.checked_at > watchdog.period_s and watchdog.active:
                 watchdog.check(c1, f"tick {k} (t={t:.3f} s)")
@@ -606,36 +635,50 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 status, reason = "error", (f"controller returned {what} at tick {k} (t={t:.3f} s); "
                                            f"expected {J} torques, shape ({J},)")
                 break
-            # Element by element: a sum overflows for large finite torques (1e308), which are only clipped.
-            if not np.isfinite(tau).all():
+            # A finite sum means finite elements; only when it is not (a non-finite element, or an overflow
+            # of large finite torques such as 1e308, which are only clipped) look element by element.
+            if not math.isfinite(sum(tau.tolist())) and not np.isfinite(tau).all():
                 status, reason = "error", f"controller returned non-finite torques at tick {k} (t={t:.3f} s)"
                 break
+            if signals is not None:
+                try:
+                    signals.record(k)
+                except SignalError as exc:
+                    status, reason = "error", f"{exc} (t={t:.3f} s)"
+                    break
+                except BaseException as exc:  # noqa: BLE001 - its own signals property or mapping raised
+                    if user.by_user(exc):
+                        raise
+                    status, reason = "error", raised_reason(exc, f"giving its signals at tick {k} (t={t:.3f} s)")
+                    break
 
             # Faults on the command (latency), the limits, faults on the applied torque (limp joints),
             # then hold until the next tick.
             if faults.commanders:
                 tau = faults.command(k, tau)
-            np.minimum(tau, limit_now, out=applied_buf)
-            np.maximum(applied_buf, -limit_now, out=applied_buf)
-            applied = applied_buf
+                np.negative(limit_now, out=neg_limit)
+            applied = applied_buf if ctrl_act is None else ctrl_act
+            np.minimum(tau, limit_now, out=applied)
+            np.maximum(applied, neg_limit, out=applied)
             if faults.appliers:
                 faults.apply(applied)
-            d.ctrl[act_s] = applied
-
-            mujoco.mj_step2(m, d)
-            step += 1
-
-            # Record the row of this instant (contact forces come from this step's solve).
+            if ctrl_act is None:
+                d.ctrl[act_s] = applied
+            # Record the row of this instant (contact forces come from this step's solve, below).
             R_torque[k] = applied
             R_limit[k] = limit_now
+
+            mj_step2(m, d)
+            step += 1
+
             if has_forces:
                 R_ext[k] = ext_now
             contacts.forces(m, d, R_force[k])
 
-            for _ in range(substeps - 1):
+            for _ in more_substeps:
                 if has_forces:
                     apply_forces(step)
-                mujoco.mj_step(m, d)
+                mj_step(m, d)
                 step += 1
             if sensors is not None:
                 sensors.after_physics()
@@ -657,8 +700,8 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 physics_fault = True
                 k += 1
                 break
-            z = d.qpos[qa + 2]
-            ground = ground_at(d.qpos[qa])
+            z = qpos[qa + 2]
+            ground = ground_at(qpos[qa]) if flat_ground is None else flat_ground
             if fell_contact or z - ground < fall_z:
                 why = contacts.fall_parts(m, d) if fell_contact else (
                     f"trunk {z - ground:.3f} m above the ground, under the fall threshold {fall_z:.3f} m")
@@ -675,10 +718,15 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
 
     n = k
     trace.truncate(n)
+    if signals is not None:
+        signals.into(trace.arrays, n)
     if n:
         A = trace.arrays
         _derive_rows(A, n, ctrl_dt, world, m, R_qvel[:n], R_xipos[:n], cmd_rows[:n])
         A["terrain_height"][:] = world.terrain.height_at(A["base_pos"][:, 0], A["base_pos"][:, 1])
+    if has_hints:
+        trace.arrays["gait_hint"] = hint_rows[:n].copy()
+        trace.meta["gait_hint_names"] = ",".join(GAIT_HINT_NAMES)
     stats = {}
     watchdog.call_limit_s = watchdog.tick_limit_s
     c0 = watchdog.call_start = time.perf_counter()
@@ -715,7 +763,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
 
 
 def _fresh_observation(J: int, F: int, t: float, quat, gyro, accel, joint_pos, joint_vel, foot_contact, base_pos,
-                       base_linvel) -> Observation:
+                       base_linvel, gait_hint: str | None = None) -> Observation:
     """A new controller observation (the controller broke its own); filled from this tick's values."""
     o = Observation.zeros(J, F)
     o.t = t
@@ -725,6 +773,7 @@ def _fresh_observation(J: int, F: int, t: float, quat, gyro, accel, joint_pos, j
     o.joint_pos[:] = joint_pos
     o.joint_vel[:] = joint_vel
     o.foot_contact[:] = foot_contact
+    o.gait_hint = gait_hint
     if base_pos is None:   # privileged: false
         o.privileged = None
         return o

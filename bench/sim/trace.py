@@ -23,6 +23,9 @@ CONTRACT_KEYS = (
 )
 #: Extra keys this bench adds (allowed by the contract).
 EXTRA_KEYS = ("qpos", "torque_limit", "controller_ms", "foot_contact", "payload_mass")
+#: Extra keys present only when the scenario uses what they record: ``gait_hint`` (int8 per row: 0 none,
+#: 1 stand, 2 trot, 3 pace, 4 bound, 5 walk; the names in ``meta["gait_hint_names"]``, comma-separated).
+OPTIONAL_KEYS = ("gait_hint",)
 #: What each trace key holds (N = control ticks, J = joints, F = feet, in manifest order; world frame z-up,
 #: quaternions w, x, y, z). Published by `python -m bench.docgen`; a test checks every key has an entry.
 KEY_DOCS = {
@@ -46,6 +49,10 @@ KEY_DOCS = {
     "controller_ms": "(N,) controller compute time of the tick, ms (wall clock; left out of the trace digest)",
     "foot_contact": "(N, F) foot touching the ground (bool)",
     "payload_mass": "(N, P) mass of each payload at that tick, kg (0 while not attached)",
+    "gait_hint": "(N,) int8 gait hint of the tick's command: 0 none, 1 stand, 2 trot, 3 pace, 4 bound, 5 walk "
+                 "(names in `meta_gait_hint_names`); only when a command of the scenario sets `gait:`",
+    "signal_<name>": "(N, ...) a signal the controller logged each tick (its `signals` mapping), float64, NaN "
+                     "where it was missing; left out of the trace digest",
 }
 
 

@@ -1,12 +1,13 @@
 """Benchmark: accuracy of the reference state estimator against the simulator's truth, and its cost per tick.
 
-Runs bundled scenarios in full with a reference stack driving (it reads the true state as today; the
+Runs bundled scenarios in full with a reference stack driving (by default ``force-qp-l1-privileged``,
+which reads the true state; ``--controller force-qp-l1`` drives on its own estimate instead); the
 estimator runs alongside on the same observations, after the bench's sensor faults) and prints, per
 scenario: trunk velocity RMS error (3-D, world), worst trunk height error, horizontal position error at
 the end as a share of the horizontal distance travelled, the median consistency figure (NIS) over the
 second half, and the median time of one estimator update.
 
-    python tests/benchmarks/bench_estimator.py [--controller force-qp-l1] [--ground-height-noise M]
+    python tests/benchmarks/bench_estimator.py [--controller force-qp-l1-privileged] [--ground-height-noise M]
                                                [scenario.yaml ...]
 
 ``--ground-height-noise`` turns on the stance-foot height pseudo-measurement (the ground taken as flat
@@ -52,7 +53,7 @@ class _TimedProbe(EstimatorProbe):
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("scenarios", nargs="*", default=list(DEFAULT))
-    ap.add_argument("--controller", default="force-qp-l1")
+    ap.add_argument("--controller", default="force-qp-l1-privileged")
     ap.add_argument("--ground-height-noise", type=float, default=None, metavar="M")
     args = ap.parse_args()
     params = {} if args.ground_height_noise is None else {"ground_height_noise_m": args.ground_height_noise}

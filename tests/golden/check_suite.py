@@ -11,7 +11,10 @@ only comparable for the same MuJoCo build).
 The test suite checks a fast subset of the same episodes
 (``tests/test_golden_digests.py``); this script checks all of them.
 To refresh the file after a change that legitimately moves the physics, run it
-with ``--write`` and say in the commit message why the digests moved.
+with ``--write`` and say in the commit message why the digests moved. New
+scenarios get their entries with ``--add``: it checks the episodes as usual and
+writes only the ones the file does not have yet, leaving every existing entry
+as it is (``--only ID``, repeatable, limits the run to those episodes).
 """
 
 from __future__ import annotations
@@ -66,27 +69,41 @@ def main(argv=None) -> int:
     p.add_argument("--controller", default="all")
     p.add_argument("--workers", type=int, default=2)
     p.add_argument("--write", action="store_true", help="replace the golden digests with this run's")
+    p.add_argument("--add", action="store_true",
+                   help="write the entries of episodes not in the golden file yet; leave the others as they are")
+    p.add_argument("--only", action="append", default=None, metavar="ID", help="run only this episode (repeatable)")
     a = p.parse_args(argv)
+    if a.write and a.only:
+        p.error("--write replaces every entry: it cannot be limited with --only (use --add for new episodes)")
     golden = json.loads(GOLDEN.read_text())
-    if golden["mujoco_version"] != mujoco.__version__ and not a.write:
+    if golden["mujoco_version"] != mujoco.__version__ and not a.write:   # --add too: never mix builds
         print(f"golden digests were made with MuJoCo {golden['mujoco_version']}, this is {mujoco.__version__}")
         return 2
     names = list(golden["controllers"]) if a.controller == "all" else [a.controller]
     bad = 0
     for name in names:
         with tempfile.TemporaryDirectory() as tmp:
-            got = run_suite(name, a.workers, Path(tmp))
+            got = run_suite(name, a.workers, Path(tmp), only=a.only)
         if a.write:
             golden["controllers"][name] = got
             golden["mujoco_version"] = mujoco.__version__
             continue
-        diff = differences(golden["controllers"].get(name, {}), got)
+        want = golden["controllers"].setdefault(name, {})
+        if a.add:
+            new = sorted(sid for sid in got if sid not in want)
+            for sid in new:
+                want[sid] = got[sid]
+            print(f"{name}: added {len(new)} new episodes" + (f" ({', '.join(new)})" if new else ""))
+        if a.only:
+            want = {sid: e for sid, e in want.items() if sid in got}
+        diff = differences(want, got)
         print(f"{name}: {len(got)} episodes, {len(diff)} differ")
         for line in diff:
             print("  " + line)
         bad += len(diff)
-    if a.write:
-        GOLDEN.write_text(json.dumps(golden, indent=1, sort_keys=True) + "\n")
+    if a.write or a.add:
+        end = "\n" if a.write or GOLDEN.read_text().endswith("\n") else ""   # --add: leave the file's ending
+        GOLDEN.write_text(json.dumps(golden, indent=1, sort_keys=True) + end)
         print(f"wrote {GOLDEN}")
     return 1 if bad else 0
 
