@@ -44,6 +44,10 @@ roll and pitch of the plane fitted to the feet's last contact points (clipped to
 ``scan_max_tilt_deg``; the height may be raised by ``scan_height_offset_m``, 0 by default);
 each stance foot's friction pyramid is turned to the scan's local normal under it. The scan
 is placed with the trunk's current position and heading (exact for a scan without latency).
+The scan reads world heights while the trunk state may be an estimate whose height drifts, so
+the scan is shifted into the estimate's vertical frame: the offset is the mean, over stance
+feet on safe cells, of (foot height from the estimate and the legs) minus (scan height under
+the foot), low-passed with ``scan_align_tau_s``. With the true state it stays near zero.
 Without a scan none of this code runs.
 
 Neither stack is told about payloads: only the nominal robot's mass, inertia
@@ -106,6 +110,8 @@ class ForceQPController:
     scan_swing_hold: share of the swing at each end without horizontal motion (``swing.py``).
     scan_max_tilt_deg: clip on the desired roll and pitch taken from the fitted ground plane.
     scan_tilt_tau_s: time constant of the low-pass on that desired roll and pitch (s).
+    scan_align_tau_s: time constant of the vertical alignment of the scan with the trunk-state
+        estimate's frame (s; see above).
     scan_height_offset_m: added to the desired trunk height while a scan is present (m); a taller
         stance folds the knees less far back, away from the edge of the step behind when descending.
     privileged: read the true trunk position and velocity from ``obs.privileged``
@@ -154,6 +160,7 @@ class ForceQPController:
         scan_max_tilt_deg: float = 14.0,
         scan_tilt_tau_s: float = 0.4,
         scan_height_offset_m: float = 0.0,
+        scan_align_tau_s: float = 0.1,
         gait_tuning: dict | None = None,
         privileged: bool = False,
         estimator: dict | None = None,
@@ -314,6 +321,8 @@ class ForceQPController:
             # no contact sensing reported (or airborne): trust fully loaded stance feet
             fc = [ld >= 1.0 for ld in gait.load_list]
         fh = kin.foot_height_nominal
+        if smap is not None:
+            self._scan_align(smap, contact, fc, fp, fh)
         ground = self.ground
         ground.observe(fp, [contact[i] and fc[i] for i in range(self.n_feet)], fh)
         gz, gx, gy = ground.fit(pos[0], pos[1])
@@ -408,8 +417,33 @@ class ForceQPController:
             self._tilt_alpha = 1.0 - math.exp(-self.dt / max(p["scan_tilt_tau_s"], 1e-6))
             self._tilt = [0.0, 0.0]   # desired pitch, roll (rad)
             self._scan_dz = float(p["scan_height_offset_m"])
-        self.scan_map.update(scan, x, y, yaw)
-        return self.scan_map
+            self._align_alpha = 1.0 - math.exp(-self.dt / max(p["scan_align_tau_s"], 1e-6))
+            self._scan_off = None          # estimate frame minus world, m (None: not yet seen a stance foot)
+            self._scan_buf = np.empty(np.shape(scan))
+        smap = self.scan_map
+        smap.update(scan, x, y, yaw)
+        if self._scan_off:
+            np.add(smap.heights, self._scan_off, out=self._scan_buf)
+            smap.heights = self._scan_buf
+        return smap
+
+    def _scan_align(self, smap, contact, fc, fp, fh: float) -> None:
+        """Update the offset between the trunk-state frame and the scan's world heights from the stance feet."""
+        acc, n = 0.0, 0
+        for i in range(self.n_feet):
+            if contact[i] and fc[i]:
+                x, y, z = fp[i]
+                if smap.is_safe(x, y):
+                    h = smap.height_at(x, y)
+                    if h == h:
+                        acc += (z - fh) - h
+                        n += 1
+        if n:
+            r = acc / n
+            if self._scan_off is None:
+                self._scan_off = r        # first reading: take it whole (the estimate starts anywhere)
+            else:
+                self._scan_off += self._align_alpha * r
 
     def _scan_foothold(self, smap, i: int, fh_i: list, fh: float) -> None:
         """Move the planned foothold ``fh_i`` of swing foot ``i`` onto the scan; set its apex."""
