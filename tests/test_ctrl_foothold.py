@@ -179,7 +179,7 @@ criteria:
 """
 
 
-def _episode(tmp_path, sensing, duration=3.2):
+def _episode(tmp_path, sensing, duration=3.2, controller=None):
     from bench.robot.model import NominalRobot
     from bench.scenario import load_scenarios
     from bench.sim.episode import run_episode
@@ -190,7 +190,7 @@ def _episode(tmp_path, sensing, duration=3.2):
     path.write_text(textwrap.dedent(ONE_STEP.format(duration=duration, sensing=sensing)))
     sc = load_scenarios([str(path)])[0]
     world = build_world(sc)
-    ep = run_episode(world, sc, ForceQPL1Controller(), NominalRobot(world.robot))
+    ep = run_episode(world, sc, controller or ForceQPL1Controller(), NominalRobot(world.robot))
     return ep
 
 
@@ -205,3 +205,26 @@ def test_short_stair_episode_climbs_one_step(tmp_path):
     assert np.all(feet[:, 0] > 0.45 + 0.05), feet
     assert np.all(feet[:, 2] > 0.08), feet         # on the lower ground they would read about 0.01
     assert pos[-1, 2] > 0.10 + 0.25
+
+
+def test_scan_is_shifted_into_the_trunk_states_vertical_frame(tmp_path):
+    """The scan reads world heights; a stack's trunk state may be off vertically (an estimate that
+    drifted). Here the true state is handed over 5 cm too high: the stack's scan offset must take up
+    those 5 cm (compared with the same run without the bias, which leaves only the feet's contact
+    compression in the offset), else footholds and swing apexes would mix two vertical frames."""
+    from bench.controllers.stacks import ForceQPL1Controller
+
+    class Biased(ForceQPL1Controller):
+        def step(self, obs, command):
+            obs.privileged.base_pos[2] += 0.05
+            return super().step(obs, command)
+
+    sensing = "sensing:\n  height_scan: {size: [1.1, 0.5], resolution: 0.02, offset: [0.1, 0.0]}"
+    plain, biased = ForceQPL1Controller(privileged=True), Biased(privileged=True)
+    for ctrl in (plain, biased):
+        ep = _episode(tmp_path, sensing, controller=ctrl)
+        assert ep.status == "completed", ep.reason
+    assert plain._scan_off is not None and abs(plain._scan_off) < 0.01      # contact compression only
+    assert abs((biased._scan_off - plain._scan_off) - 0.05) < 0.003, (biased._scan_off, plain._scan_off)
+    # and it still climbs the step in the shifted frame
+    assert np.all(ep.trace.arrays["foot_pos"][-1][:, 2] > 0.08)
