@@ -37,6 +37,26 @@ process and to its velocity measurement. Left out, it reads as the trunk
 moving slower than it does (a few per cent of the distance on the bundled
 robot's 2 cm feet).
 
+Trust near touchdown and lift-off: a foot that has just touched down is still
+moving (it lands at up to a few m/s, sinks into a compliant ground and is
+stopped over a few ticks), and a foot about to lift is unloaded and may start
+moving before its flag turns off. Counted as still, such a foot reads as the
+trunk moving faster in the direction the foot travels. Each stance foot
+therefore has a weight ``w_i`` in (0, 1]: a smooth ramp over
+``touchdown_settle_s`` after its contact flag turns on, times an optional
+caller-given trust (e.g. the gait scheduler's load, which ramps down before
+lift-off). Its horizontal velocity measurement variance is divided by ``w_i``
+and its horizontal random-walk (process) variance too, so a settling foot
+slides freely in the filter and tells little about the trunk's horizontal
+motion until it has stopped; at ``w_i = 1`` the filter is as above. The
+vertical rows keep full weight: on a compliant ground the foot sinks after
+touchdown and rises back out before lift-off, and the two cancel over a stance
+only if both are seen (weighing down the sink alone leaves the rise, read as
+the trunk sinking: -0.2 m/s of vertical velocity bias measured in a bound). This is the usual treatment of leg odometry: raise a
+foot's measurement noise where its contact is uncertain, near touchdown and
+lift-off (common practice in leg-odometry + IMU filters; the ramp shape and
+length are ours, no source).
+
 The rows of a foot out of contact are left out (zeroed), and its state is
 re-seated at the leg's reach ``p + R r_i`` with a large variance and no
 correlation to the rest, so it says nothing about the trunk and is caught
@@ -73,6 +93,8 @@ from bench.controllers.trunk_kinematics import TrunkFrameFeet
 
 #: Variance of a foot out of contact (m^2): its position is unknown until it lands.
 RELEASED_FOOT_VAR_M2 = 1.0
+#: Smallest weight a stance foot gets (its variances are divided by the weight; 0 would divide by 0).
+MIN_TRUST = 1e-3
 
 
 def _diag_view(a: np.ndarray) -> np.ndarray:
@@ -135,7 +157,9 @@ class EstimatorParams:
     ``ground_height_m`` (the height the robot starts on, or
     :meth:`LegImuEstimator.set_ground_height`); ``None`` (default) turns it
     off, as it is wrong on slopes and steps. ``init_pos_std_m`` /
-    ``init_vel_std_mps``: uncertainty at reset.
+    ``init_vel_std_mps``: uncertainty at reset. ``touchdown_settle_s``: time
+    after a foot's contact flag turns on over which its weight ramps from
+    ``MIN_TRUST`` to 1 (0 turns the ramp off: a foot is trusted fully at once).
 
     Defaults were chosen on trotting and slope runs of the bundled robot and
     are on the cautious side for its noiseless simulated sensors.
@@ -148,6 +172,7 @@ class EstimatorParams:
     ground_height_noise_m: float | None = None
     init_pos_std_m: float = 0.001
     init_vel_std_mps: float = 0.1
+    touchdown_settle_s: float = 0.05
 
     def check(self) -> None:
         for name in ("accel_noise_mps2", "stance_foot_drift_m_per_rt_s",
@@ -165,6 +190,9 @@ class EstimatorParams:
         g = self.ground_height_noise_m
         if g is not None and not (isinstance(g, (int, float)) and math.isfinite(g) and g > 0):
             raise ValueError(f"EstimatorParams.ground_height_noise_m must be a positive number or None, got {g!r}")
+        ts = self.touchdown_settle_s
+        if not (isinstance(ts, (int, float)) and not isinstance(ts, bool) and math.isfinite(ts) and ts >= 0):
+            raise ValueError(f"EstimatorParams.touchdown_settle_s must be a number of seconds >= 0, got {ts!r}")
 
 
 @dataclass
@@ -271,6 +299,12 @@ class LegImuEstimator:
         self._tmp_nn = np.zeros((3, n, n))
         self._q_feet = np.repeat(self._q_stance[:, None], nf, axis=1)
         self._contact = np.zeros(nf, dtype=bool)
+        # per-foot weight (see the module docstring): settle ramp x caller's trust
+        self._settle_ticks = float(p.touchdown_settle_s) / dt
+        self._since_on = np.zeros(nf)       # ticks since the contact flag turned on (counts from 1)
+        self._w = np.ones(nf)
+        self._trust_in = np.ones(nf)
+        self._trust_pos = np.ones(nf, dtype=bool)
         self.state = EstimatorState(foot_pos=np.zeros((nf, 3)))
         self._initial_height_m: float | None = None
         self._initial_xy = (0.0, 0.0)
@@ -313,11 +347,15 @@ class LegImuEstimator:
         self._started = True
 
     # ------------------------------------------------------------------- tick
-    def update(self, obs, contact: np.ndarray | None = None) -> EstimatorState:
+    def update(self, obs, contact: np.ndarray | None = None, trust=None) -> EstimatorState:
         """Fuse one observation; returns :attr:`state` (updated in place).
 
         ``contact``: per-foot stance flags to use instead of ``obs.foot_contact``
-        (e.g. a gait schedule ANDed with the sensor).
+        (e.g. a gait schedule ANDed with the sensor). ``trust``: optional
+        per-foot weight in [0, 1] of a stance foot's measurements (e.g. the gait
+        scheduler's load, low just after touchdown and before lift-off); it
+        multiplies the estimator's own touchdown ramp. A foot with trust 0 is
+        treated as out of contact.
         """
         nf = self.n_feet
         rot = so3.quat_to_mat(obs.imu_quat, out=self._rot)
@@ -334,6 +372,7 @@ class LegImuEstimator:
         np.negative(roll[:, 1], out=roll[:, 1])
         c = self._contact
         c[:] = obs.foot_contact if contact is None else contact
+        self._weigh(c, trust)
         acc = self._acc
         np.matmul(rot, obs.imu_accel, out=acc)
         acc += self.gravity
@@ -345,6 +384,28 @@ class LegImuEstimator:
             self._correct()
         self._publish(obs.t)
         return self.state
+
+    def _weigh(self, c: np.ndarray, trust) -> None:
+        """Per-foot weight this tick; a foot whose weight is 0 is dropped from the contact set."""
+        since = self._since_on
+        since += 1.0
+        np.multiply(since, c, out=since)
+        w = self._w
+        if self._settle_ticks > 0.0:
+            # smooth 0 -> 1 ramp (3x^2 - 2x^3) over the settle time, first stance tick at x = 1/n
+            np.divide(since, self._settle_ticks, out=w)
+            np.clip(w, 0.0, 1.0, out=w)
+            w *= w * (3.0 - 2.0 * w)
+        else:
+            w[:] = 1.0
+        if trust is not None:
+            t = self._trust_in
+            t[:] = trust
+            np.clip(t, 0.0, 1.0, out=t)
+            w *= t
+            np.greater(t, 0.0, out=self._trust_pos)
+            np.logical_and(c, self._trust_pos, out=c)
+        np.maximum(w, MIN_TRUST, out=w)
 
     def _predict(self, contact: np.ndarray) -> None:
         dt = self.dt
@@ -370,7 +431,9 @@ class LegImuEstimator:
         P[:, :, 0] += t3n
         self._Pv += self._q_pv
 
-        # stance feet may creep (slip, contact compression); released feet are reset after the update
+        # stance feet may creep (slip, contact compression), a settling foot freely (its
+        # weight divides the variance); released feet are reset after the update
+        np.divide(self._q_stance[:2, None], self._w[None, :], out=self._q_feet[:2])
         self._Pd_feet += self._q_feet
         self._active[:] = contact
 
@@ -395,6 +458,7 @@ class LegImuEstimator:
         np.subtract(y, self._hx[:, :, 0], out=self._e)
         np.matmul(H, P, out=self._HP)
         np.matmul(self._HP, self._Ht, out=self._S)
+        np.divide(self._r_vel[:2, None], self._w[None, :], out=r[:2, nf:2 * nf])
         self._Sd += r
         # one solve gives the gain (S^-1 H P) and S^-1 e for the consistency figure
         self._rhs[:, :, :self.n] = self._HP

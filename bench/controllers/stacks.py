@@ -187,6 +187,7 @@ class ForceQPController:
             self.est = LegImuEstimator(robot, self.dt, **(p["estimator"] or {}))
             self.est.reset()
             self._est_contact = np.ones(nf, dtype=bool)
+            self._est_trust = np.ones(nf)
         self._reset_extra()
 
     def _reset_extra(self) -> None:
@@ -336,7 +337,10 @@ class ForceQPController:
         else:
             # no contact sensing reported (or airborne): fully loaded stance feet, as the ground estimate does
             c[:] = [ld >= 1.0 for ld in self.gait.load_list]
-        s = self.est.update(obs, contact=c)
+        # the schedule's load ramps (touchdown, lift-off) weigh a foot's measurements: where the
+        # stack itself does not lean on a foot, the estimator does not either
+        self._est_trust[:] = self.gait.load_list
+        s = self.est.update(obs, contact=c, trust=self._est_trust)
         return s.base_pos, s.base_linvel
 
     def _start(self, pos) -> None:
