@@ -184,7 +184,9 @@ class ForceQPController:
         self._privileged = bool(p["privileged"])
         self.est = None
         if not self._privileged:
-            self.est = LegImuEstimator(robot, self.dt, **(p["estimator"] or {}))
+            # short stance phases (bound, pace: ~0.1 s) make a landing foot's skid a large share of
+            # its stance, so the settle ramp weighs its velocity too (see estimator.py)
+            self.est = LegImuEstimator(robot, self.dt, **{"settle_weighs_velocity": True, **(p["estimator"] or {})})
             self.est.reset()
             self._est_contact = np.ones(nf, dtype=bool)
             self._est_trust = np.ones(nf)
