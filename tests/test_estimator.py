@@ -225,6 +225,42 @@ def test_a_foot_still_moving_at_touchdown_pulls_the_estimate_less_while_it_settl
     assert _landing_run(0.05, weigh_velocity=False) == pytest.approx(at_once, rel=1e-9)   # off: as before
 
 
+def _swinging_shank_landing(settle_s: float) -> float:
+    """Standing still; every foot lifts for 10 ticks and lands with its shank still turning at 20 rad/s
+    about the lateral axis for 10 ticks (a swinging leg, not a rolling foot: the feet do not move).
+    Returns the largest |estimated vx| after the landing (the truth is 0)."""
+    est = LegImuEstimator(ROBOT, DT, touchdown_settle_s=settle_s)
+    est.reset()
+    obs = _static_obs()
+    for _ in range(50):
+        est.update(obs)
+    kin = est.kin
+    worst = 0.0
+    for k in range(50):
+        obs.foot_contact[:] = k >= 10
+        kin_update = kin.update
+
+        def turning(q, qd, gyro, _k=k, _up=kin_update):
+            _up(q, qd, gyro)
+            if 10 <= _k < 20:
+                kin.foot_angvel[:, 1] += 20.0
+        kin.update = turning
+        s = est.update(obs)
+        kin.update = kin_update
+        if k >= 10:
+            worst = max(worst, abs(float(s.base_linvel[0])))
+    return worst
+
+
+def test_a_landing_foot_is_not_taken_as_rolling_at_once():
+    """The rolling term (module docstring) assumes the foot rolls on the ground; a landing foot still
+    turns with the swinging shank. With the settle ramp (default) the estimate moves much less."""
+    at_once = _swinging_shank_landing(0.0)
+    ramped = _swinging_shank_landing(0.05)
+    assert at_once > 0.05, at_once
+    assert ramped < 0.3 * at_once, (ramped, at_once)
+
+
 def test_trust_weighs_a_foot_and_zero_trust_drops_it():
     obs = _static_obs()
     full = LegImuEstimator(ROBOT, DT, touchdown_settle_s=0.0)

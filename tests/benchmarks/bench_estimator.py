@@ -8,10 +8,12 @@ the end as a share of the horizontal distance travelled, the median consistency 
 second half, and the median time of one estimator update.
 
     python tests/benchmarks/bench_estimator.py [--controller force-qp-l1-privileged] [--ground-height-noise M]
-                                               [scenario.yaml ...]
+                                               [--settle-weighs-velocity] [--no-settle] [scenario.yaml ...]
 
 ``--ground-height-noise`` turns on the stance-foot height pseudo-measurement (the ground taken as flat
-at the height the robot starts on) with that standard deviation in metres.
+at the height the robot starts on) with that standard deviation in metres. ``--settle-weighs-velocity`` runs
+the estimator as the reference stacks do (a landing foot's velocity weighed by its settle ramp);
+``--no-settle`` turns the settle ramp off (the estimator before it existed), for comparison.
 """
 
 from __future__ import annotations
@@ -32,6 +34,8 @@ DEFAULT = (
     "scenarios/terrain/slope-12deg-up.yaml",
     "scenarios/faults/noisy-sensors.yaml",
     "scenarios/faults/frozen-encoders.yaml",
+    "scenarios/gaits/bound-forward.yaml",
+    "scenarios/gaits/pace-sideways.yaml",
 )
 
 
@@ -55,8 +59,14 @@ def main() -> None:
     ap.add_argument("scenarios", nargs="*", default=list(DEFAULT))
     ap.add_argument("--controller", default="force-qp-l1-privileged")
     ap.add_argument("--ground-height-noise", type=float, default=None, metavar="M")
+    ap.add_argument("--settle-weighs-velocity", action="store_true")
+    ap.add_argument("--no-settle", action="store_true")
     args = ap.parse_args()
     params = {} if args.ground_height_noise is None else {"ground_height_noise_m": args.ground_height_noise}
+    if args.settle_weighs_velocity:
+        params["settle_weighs_velocity"] = True
+    if args.no_settle:
+        params["touchdown_settle_s"] = 0.0
     import estimator_eval
     estimator_eval.EstimatorProbe = _TimedProbe          # run_with_estimator builds this one
     print(f"controller {args.controller}; estimator {params or 'defaults'}; errors against the simulator's truth")
