@@ -29,6 +29,7 @@ import pytest
 
 from bench.controllers.base import Observation
 from bench.controllers.estimator import EstimatorParams, LegImuEstimator
+from bench.controllers.stacks import STACK_ESTIMATOR
 from bench.robot import NominalRobot, resolve_robot
 from estimator_eval import estimator_errors, run_with_estimator, scenario_from
 
@@ -254,7 +255,7 @@ def _swinging_shank_landing(settle_s: float) -> float:
 
 def test_a_landing_foot_is_not_taken_as_rolling_at_once():
     """The rolling term (module docstring) assumes the foot rolls on the ground; a landing foot still
-    turns with the swinging shank. With the settle ramp (default) the estimate moves much less."""
+    turns with the swinging shank. With the settle ramp the estimate moves much less."""
     at_once = _swinging_shank_landing(0.0)
     ramped = _swinging_shank_landing(0.05)
     assert at_once > 0.05, at_once
@@ -417,11 +418,11 @@ BOUND_BIAS_BAR_MPS = 0.075
 
 
 def test_bound_velocity_estimate_does_not_run_ahead(tmp_path):
-    """As the reference stacks run the estimator (settle ramp weighing the velocity). Measured: 0.159 m/s
-    with no settle ramp (the old behaviour), 0.122 with the rolling term's ramp only (the default), 0.042
+    """As the reference stacks run the estimator (STACK_ESTIMATOR). Measured: 0.159 m/s with no settle
+    ramp (the default, and the estimator before the ramp), 0.122 with the rolling term's ramp only, 0.042
     with both."""
     sc = scenario_from("scenarios/gaits/bound-forward.yaml", 3.0, "", tmp_path)
-    ep, probe = run_with_estimator(sc, settle_weighs_velocity=True)
+    ep, probe = run_with_estimator(sc, **STACK_ESTIMATOR)
     assert ep.status == "completed"
     n = min(len(ep.trace), probe.k)
     t = ep.trace["t"][:n]

@@ -49,6 +49,9 @@ import numpy as np
 
 from bench.controllers import so3
 from bench.controllers.estimator import LegImuEstimator
+
+#: Estimator settings of the stacks on top of ``EstimatorParams``' defaults (``estimator=`` overrides).
+STACK_ESTIMATOR = {"touchdown_settle_s": 0.05, "settle_weighs_velocity": True}
 from bench.controllers.force_qp import ForceQP
 from bench.controllers.gait import GAIT_TUNING, GaitScheduler
 from bench.controllers.ground import GroundPlane
@@ -185,8 +188,8 @@ class ForceQPController:
         self.est = None
         if not self._privileged:
             # short stance phases (bound, pace: ~0.1 s) make a landing foot's skid a large share of
-            # its stance, so the settle ramp weighs its velocity too (see estimator.py)
-            self.est = LegImuEstimator(robot, self.dt, **{"settle_weighs_velocity": True, **(p["estimator"] or {})})
+            # its stance: a settle ramp for the rolling term and the velocity (see estimator.py)
+            self.est = LegImuEstimator(robot, self.dt, **{**STACK_ESTIMATOR, **(p["estimator"] or {})})
             self.est.reset()
             self._est_contact = np.ones(nf, dtype=bool)
             self._est_trust = np.ones(nf)
