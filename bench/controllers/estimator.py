@@ -376,8 +376,8 @@ class LegImuEstimator:
         (e.g. a gait schedule ANDed with the sensor). ``trust``: optional
         per-foot weight in [0, 1] of a stance foot's measurements (e.g. the gait
         scheduler's load, low just after touchdown and before lift-off); it
-        multiplies the estimator's own touchdown ramp. A foot with trust 0 is
-        treated as out of contact.
+        multiplies the foot's weight (see the module docstring). A foot with
+        trust 0 is treated as out of contact.
         """
         nf = self.n_feet
         rot = so3.quat_to_mat(obs.imu_quat, out=self._rot)
