@@ -63,6 +63,9 @@ import numpy as np
 
 from bench.controllers import so3
 from bench.controllers.estimator import LegImuEstimator
+
+#: Estimator settings of the stacks on top of ``EstimatorParams``' defaults (``estimator=`` overrides).
+STACK_ESTIMATOR = {"touchdown_settle_s": 0.05, "settle_weighs_velocity": True}
 from bench.controllers.force_qp import ForceQP
 from bench.controllers.gait import GAIT_TUNING, GaitScheduler
 from bench.controllers.ground import GroundPlane
@@ -233,9 +236,12 @@ class ForceQPController:
         self._privileged = bool(p["privileged"])
         self.est = None
         if not self._privileged:
-            self.est = LegImuEstimator(robot, self.dt, **(p["estimator"] or {}))
+            # short stance phases (bound, pace: ~0.1 s) make a landing foot's skid a large share of
+            # its stance: a settle ramp for the rolling term and the velocity (see estimator.py)
+            self.est = LegImuEstimator(robot, self.dt, **{**STACK_ESTIMATOR, **(p["estimator"] or {})})
             self.est.reset()
             self._est_contact = np.ones(nf, dtype=bool)
+            self._est_trust = np.ones(nf)
         # Per-tick signals the bench records (trace.npz ``signal_*``, plots, report): 1 when this tick's
         # force QP solved, 0 when it fell back to the previous forces.
         self.signals = {"qp_ok": 1.0}
@@ -492,7 +498,10 @@ class ForceQPController:
         else:
             # no contact sensing reported (or airborne): fully loaded stance feet, as the ground estimate does
             c[:] = [ld >= 1.0 for ld in self.gait.load_list]
-        s = self.est.update(obs, contact=c)
+        # the schedule's load ramps (touchdown, lift-off) weigh a foot's measurements: where the
+        # stack itself does not lean on a foot, the estimator does not either
+        self._est_trust[:] = self.gait.load_list
+        s = self.est.update(obs, contact=c, trust=self._est_trust)
         return s.base_pos, s.base_linvel
 
     def _start(self, pos) -> None:

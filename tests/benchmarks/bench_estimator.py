@@ -8,10 +8,12 @@ the end as a share of the horizontal distance travelled, the median consistency 
 second half, and the median time of one estimator update.
 
     python tests/benchmarks/bench_estimator.py [--controller force-qp-l1-privileged] [--ground-height-noise M]
-                                               [scenario.yaml ...]
+                                               [--stack-settings | --rolling-ramp] [scenario.yaml ...]
 
 ``--ground-height-noise`` turns on the stance-foot height pseudo-measurement (the ground taken as flat
-at the height the robot starts on) with that standard deviation in metres.
+at the height the robot starts on) with that standard deviation in metres. ``--stack-settings`` runs the
+estimator as the reference stacks do (``STACK_ESTIMATOR``: a landing foot's rolling term and velocity
+weighed by a settle ramp); ``--rolling-ramp`` the rolling term's ramp alone; the default is no ramp.
 """
 
 from __future__ import annotations
@@ -32,6 +34,8 @@ DEFAULT = (
     "scenarios/terrain/slope-12deg-up.yaml",
     "scenarios/faults/noisy-sensors.yaml",
     "scenarios/faults/frozen-encoders.yaml",
+    "scenarios/gaits/bound-forward.yaml",
+    "scenarios/gaits/pace-sideways.yaml",
 )
 
 
@@ -55,8 +59,15 @@ def main() -> None:
     ap.add_argument("scenarios", nargs="*", default=list(DEFAULT))
     ap.add_argument("--controller", default="force-qp-l1-privileged")
     ap.add_argument("--ground-height-noise", type=float, default=None, metavar="M")
+    ap.add_argument("--stack-settings", action="store_true")
+    ap.add_argument("--rolling-ramp", action="store_true")
     args = ap.parse_args()
     params = {} if args.ground_height_noise is None else {"ground_height_noise_m": args.ground_height_noise}
+    if args.stack_settings:
+        from bench.controllers.stacks import STACK_ESTIMATOR
+        params.update(STACK_ESTIMATOR)
+    elif args.rolling_ramp:
+        params["touchdown_settle_s"] = 0.05
     import estimator_eval
     estimator_eval.EstimatorProbe = _TimedProbe          # run_with_estimator builds this one
     print(f"controller {args.controller}; estimator {params or 'defaults'}; errors against the simulator's truth")
