@@ -33,20 +33,19 @@ class Privileged:
 class Observation:
     """Sensor readings at one control tick (arrays updated in place by the runner)."""
 
-    t: float = 0.0
+    t: float = 0.0  # simulation time of this tick, s
     imu_quat: np.ndarray = field(default_factory=lambda: np.array([1.0, 0.0, 0.0, 0.0]))  # w,x,y,z world
     imu_gyro: np.ndarray = field(default_factory=lambda: np.zeros(3))  # body rad/s
     imu_accel: np.ndarray = field(default_factory=lambda: np.zeros(3))  # body specific force m/s^2
     joint_pos: np.ndarray = field(default_factory=lambda: np.zeros(0))  # (J,) rad
     joint_vel: np.ndarray = field(default_factory=lambda: np.zeros(0))  # (J,) rad/s
-    foot_contact: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=bool))  # (F,)
+    foot_contact: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=bool))  # (F,) foot touching the ground, manifest foot order
     privileged: Privileged | None = field(default_factory=Privileged)  # None when the scenario says privileged: false
     # Extra sensors (scenario key ``sensing:``); None when the scenario does not configure them.
     height_scan: np.ndarray | None = None   # (nx, ny) world z of the terrain, m; NaN: no reading
     foot_force: np.ndarray | None = None    # (F,) normal force N, or (F, 3) world-frame force N
     joint_torque: np.ndarray | None = None  # (J,) measured joint torque, N m
-    # The scenario's gait hint (stand, trot, pace, bound, walk) or None: a hint, which a controller may ignore.
-    gait_hint: str | None = None
+    gait_hint: str | None = None  # the command's gait hint (stand, trot, pace, bound, walk) or None; a controller may ignore it
 
     @classmethod
     def zeros(cls, n_joints: int, n_feet: int) -> "Observation":

@@ -104,6 +104,8 @@ def source_comments(cls: Any) -> dict[str, str]:
     except (OSError, TypeError):
         return {}
     lines = src.splitlines()
+    while lines and not lines[0].lstrip().startswith("class "):   # decorators (``@dataclass``) come first
+        lines.pop(0)
     body_indent = None
     for line in lines[1:]:
         if line.strip():
