@@ -362,6 +362,10 @@ def test_bench_list_controllers_is_unchanged():
     names = [line.split()[0] for line in p.stdout.splitlines() if line.strip()]
     assert {"zero", "joint-pd", "force-qp", "force-qp-l1"} <= set(names)
     assert not any(n.startswith("sealed") for n in names)
+    # the descriptions start in one column, whatever the names' lengths (force-qp-l1-privileged)
+    lines = [line for line in p.stdout.splitlines() if line.strip()]
+    starts = {len(line) - len(line[len(line.split()[0]):].lstrip()) for line in lines}
+    assert len(starts) == 1, p.stdout
 
 
 def test_naming_a_sealed_module_runs_none_of_its_code_in_the_bench_process(stand, tmp_path, monkeypatch):

@@ -29,8 +29,10 @@ def run(args) -> int:
     if args.what == "controllers":
         from bench.controllers.registry import available
 
-        for info in available():
-            print(f"{info.name:<16} {info.description}")
+        infos = list(available())
+        width = max((len(i.name) for i in infos), default=0)   # one column, however long the names
+        for info in infos:
+            print(f"{info.name:<{width}}  {info.description}")
     elif args.what == "criteria":
         from bench.scenario.criteria import all_criteria, criterion_names, load_errors
 
