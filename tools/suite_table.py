@@ -74,7 +74,6 @@ def table(folders: list[Path], labels: list[str]) -> str:
             if base in trial_ids and "[trial" in sid:
                 continue
             rows.setdefault(sid, ["not run"] * len(runs))[i] = cell(r)
-            rows[sid].append(r.get("source", ""))
         for sid, t in trials.items():
             rows.setdefault(f"{sid} ({t['trials']} trials)", ["not run"] * len(runs))[i] = trial_cell(t)
     sources = {}
@@ -93,7 +92,7 @@ def table(folders: list[Path], labels: list[str]) -> str:
         return parts[-2] if len(parts) >= 2 else ""
 
     for sid in sorted(rows, key=lambda s: (folder_of(s), s)):
-        out.append(f"| {folder_of(sid)} | `{sid}` | " + " | ".join(rows[sid][:len(runs)]) + " |")
+        out.append(f"| {folder_of(sid)} | `{sid}` | " + " | ".join(rows[sid]) + " |")
     return "\n".join(out)
 
 

@@ -323,17 +323,6 @@ def handshake_header(robot, control_dt: float, extra_lines=()) -> str:
     return "\n".join(lines) + "\n"
 
 
-def observation_frame_size(n_joints: int, n_feet: int) -> int:
-    """Numbers in one version-1 observation, in protocol order: tick, time, command, IMU, joints, contacts,
-    privileged."""
-    return 2 + 3 + 4 + 3 + 3 + 2 * n_joints + n_feet + 3 + 3
-
-
-def pack_observation(row: np.ndarray, k: int, obs, command) -> None:
-    """Write tick ``k``'s observation and command into ``row`` in version-1 order (an ``OBS`` line's numbers)."""
-    ObservationLayout(len(obs.joint_pos), len(obs.foot_contact)).pack(row, k, obs, command)
-
-
 def _signal_group(pgid: int, sig: int) -> bool:
     """Send ``sig`` to process group ``pgid``; False when the group is gone."""
     try:

@@ -107,23 +107,6 @@ FRAME_FIELDS = ("t", "imu_quat", "imu_gyro", "imu_accel", "joint_pos", "joint_ve
                 "gait_hint")
 
 
-def unpack_observation(row: np.ndarray, obs, command: np.ndarray) -> int:
-    """Fill ``obs`` and ``command`` in place from a version-1 ``row``; return the tick number."""
-    J, F = len(obs.joint_pos), len(obs.foot_contact)
-    obs.t = float(row[1])
-    command[:] = row[2:5]
-    obs.imu_quat[:] = row[5:9]
-    obs.imu_gyro[:] = row[9:12]
-    obs.imu_accel[:] = row[12:15]
-    obs.joint_pos[:] = row[15:15 + J]
-    obs.joint_vel[:] = row[15 + J:15 + 2 * J]
-    i = 15 + 2 * J
-    np.not_equal(row[i:i + F], 0.0, out=obs.foot_contact)
-    obs.privileged.base_pos[:] = row[i + F:i + F + 3]
-    obs.privileged.base_linvel[:] = row[i + F + 3:i + F + 6]
-    return int(row[0])
-
-
 def handshake_header(robot, control_dt: float, *, frames: str | None = FRAMES) -> str:
     """The protocol's handshake for ``robot``, plus ``manifest_path`` and the ``frames`` offer (ignorable lines)."""
     extra = [f"manifest_path {robot.manifest.manifest_path}"] + ([f"frames {frames}"] if frames else [])

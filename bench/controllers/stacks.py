@@ -233,9 +233,8 @@ class ForceQPController:
         self._normal_set = [False] * nf
         self.ticks = 0
         self.step_time_s = 0.0
-        self._privileged = bool(p["privileged"])
-        self.est = None
-        if not self._privileged:
+        self.est = None   # None: the true state is read (privileged=True)
+        if not p["privileged"]:
             # short stance phases (bound, pace: ~0.1 s) make a landing foot's skid a large share of
             # its stance: a settle ramp for the rolling term and the velocity (see estimator.py)
             self.est = LegImuEstimator(robot, self.dt, **{**STACK_ESTIMATOR, **(p["estimator"] or {})})
