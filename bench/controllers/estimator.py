@@ -103,7 +103,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from bench.controllers import so3
 from bench.controllers.trunk_kinematics import TrunkFrameFeet
 
 #: Variance of a foot out of contact (m^2): its position is unknown until it lands.
@@ -151,6 +150,30 @@ def _make_solve():
 
 
 _solve = _make_solve()
+
+
+def _make_inv():
+    """``inv(a, out)`` for stacked matrices without a fresh result array (as :func:`_make_solve`)."""
+    try:
+        from numpy.linalg import _umath_linalg
+
+        g = _umath_linalg.inv
+        a = np.array([[[2.0, 0.0], [0.0, 4.0]]])
+        o = np.empty_like(a)
+        g(a, out=o, signature="d->d")
+        if np.allclose(o[0], ((0.5, 0.0), (0.0, 0.25))):
+            return lambda a, out: g(a, out=out, signature="d->d")
+    except Exception:  # noqa: BLE001 - any failure means: use the public function
+        pass
+
+    def inv(a, out):
+        out[...] = np.linalg.inv(a)
+        return out
+
+    return inv
+
+
+_inv = _make_inv()
 
 
 #: Noise figures that may be given per world axis (x, y, z).
@@ -238,6 +261,58 @@ class EstimatorState:
     t: float = 0.0
 
 
+class _ContactSet:
+    """Constants of one set of feet in contact (a bit mask), made the first time the set occurs.
+
+    ``C``: the information the set's measurements give, ``H^T R^-1 H`` per world axis (3, n, n),
+    without the horizontal velocity rows' share (their weights change every tick); ``Q``: the
+    process noise added after the prediction (3, n, n), the pair ``p, v`` block and the vertical
+    random walk of the stance feet, with each released foot's variance (its horizontal random
+    walk, weighed, is written per tick); ``keep``: 1 where ``P`` keeps its entries, 0 on a
+    released foot's row and column (None when every foot is in contact).
+    """
+
+    __slots__ = ("key", "active", "released", "n_active", "dof", "C", "Q", "keep", "count")
+
+    def __init__(self, est: "LegImuEstimator", key: int) -> None:
+        nf, n = est.n_feet, est.n
+        self.key = key
+        self.active = [i for i in range(nf) if key >> i & 1]
+        self.released = [i for i in range(nf) if not key >> i & 1]
+        self.n_active = k = len(self.active)
+        self.dof = k * (6 + (1 if est._height_on else 0))
+        C = np.zeros((3, n, n))
+        for a in range(3):
+            for i in self.active:
+                j = 2 + i
+                ip = 1.0 / est._r_pos[a]           # f_i - p = R r_i
+                C[a, 0, 0] += ip
+                C[a, j, j] += ip
+                C[a, 0, j] -= ip
+                C[a, j, 0] -= ip
+                if a == 2:
+                    C[a, 1, 1] += 1.0 / est._r_vel[a]    # vertical velocity rows: full weight
+                    if est._height_on:
+                        C[a, j, j] += 1.0 / est._r_h
+        self.C = C
+        Q = np.zeros((3, n, n))
+        Q[:, :2, :2] = est._q_pv
+        for i in self.active:
+            Q[2, 2 + i, 2 + i] = est._q_stance[2]
+        for i in self.released:
+            Q[:, 2 + i, 2 + i] = RELEASED_FOOT_VAR_M2
+        self.Q = Q
+        if self.released:
+            keep = np.ones((n, n))
+            for i in self.released:
+                keep[2 + i, :] = 0.0
+                keep[:, 2 + i] = 0.0
+            self.keep = keep
+        else:
+            self.keep = None
+        self.count = 0
+
+
 class LegImuEstimator:
     """Trunk position and velocity from the IMU, the joint encoders and the contact flags.
 
@@ -258,24 +333,11 @@ class LegImuEstimator:
         self.kin = TrunkFrameFeet(robot)
         nf = self.n_feet = self.kin.n_feet
         n = self.n = 2 + nf                 # per axis: p, v, f_1..f_F
-        m = self.m = 3 * nf                 # per axis: F positions, F velocities, F heights
         self.gravity = np.array(robot.model.opt.gravity, dtype=float)
+        self._g = self.gravity.tolist()
         self.radius = self.kin.foot_radius_m.copy()
+        self._rad = self.radius.tolist()
         self.ground_height_m = 0.0
-
-        # measurement matrix per axis; the height rows only on z, and only if enabled
-        H = np.zeros((3, m, n))
-        for i in range(nf):
-            H[:, i, 0] = -1.0
-            H[:, i, 2 + i] = 1.0
-            H[:, nf + i, 1] = 1.0
-            if p.ground_height_noise_m is not None:
-                H[2, 2 * nf + i, 2 + i] = 1.0
-        self._H0 = H
-        self.H = H.copy()                   # H0 with the rows of feet out of contact zeroed
-        self._Ht = self.H.transpose(0, 2, 1)
-        self._mask = np.zeros((3, m))
-        self._active = np.zeros(nf, dtype=bool)
         self._height_on = p.ground_height_noise_m is not None
 
         a2 = p.accel_noise_mps2 ** 2
@@ -284,49 +346,40 @@ class LegImuEstimator:
         self._r_pos = _axes(p.kin_pos_noise_m) ** 2
         self._r_vel = _axes(p.kin_vel_noise_mps) ** 2
         self._r_h = (p.ground_height_noise_m or 1.0) ** 2
+        self._qs = self._q_stance.tolist()
+        self._inv_rpos = (1.0 / self._r_pos).tolist()
+        self._inv_rvel = (1.0 / self._r_vel).tolist()
+        self._inv_rh = 1.0 / self._r_h
 
-        # state and work arrays
+        # process: x+ = A x (+ inputs), A = I + dt e_p e_v^T, the same on every axis
+        A = np.eye(n)
+        A[0, 1] = dt
+        self._A = A
+        self._At = A.T.copy()
         self.x = np.zeros((3, n))
-        self.P = np.zeros((3, n, n))
+        # the update solves Y [P+ | dx] = [I | b] (information form, below): P is the left block
+        # of the solution array, so the solve writes the new covariance in place
+        self._sol = np.zeros((3, n, n + 1))
+        self.P = self._sol[:, :, :n]
+        self._dx = self._sol[:, :, n]
+        self._rhs = np.zeros((3, n, n + 1))
+        self._rhs[:, :, :n] = np.eye(n)
+        self._b = self._rhs[:, :, n]
         self._Pd = _diag_view(self.P)
-        self._Pd_feet = self._Pd[:, 2:]
-        self._Pv = self.P[:, :2, :2]
-        self._rot = np.eye(3)
-        self._rel_pos = np.zeros((nf, 3))
-        self._rel_vel = np.zeros((nf, 3))
-        self._foot_w = np.zeros((nf, 3))
-        self._roll = np.zeros((nf, 3))
-        self._roll_step = np.zeros((3, nf))
-        self._t3 = np.zeros(3)
-        self._t3n = np.zeros((3, n))
-        self._acc = np.zeros(3)
-        self._dx = np.zeros((3, 1, n))
-        self._y = np.zeros((3, m))
-        self._hx = np.zeros((3, m, 1))
-        self._e = np.zeros((3, m))
-        self._e_row = self._e[:, None, :]
-        self._r = np.ones((3, m))           # measurement variances (rows left out keep 1)
-        self._r[:, :nf] = self._r_pos[:, None]
-        self._r[:, nf:2 * nf] = self._r_vel[:, None]
-        self._r[2, 2 * nf:] = self._r_h
-        self._HP = np.zeros((3, m, n))
-        self._S = np.zeros((3, m, m))
-        self._Sd = _diag_view(self._S)
-        self._rhs = np.zeros((3, m, n + 1))
-        self._sol = np.zeros((3, m, n + 1))
-        self._KT = self._sol[:, :, :n]
-        self._Sinv_e = self._sol[:, :, n]
-        self._nis_terms = np.zeros((3, m))
-        self._tmp_nn = np.zeros((3, n, n))
-        self._q_feet = np.repeat(self._q_stance[:, None], nf, axis=1)
+        self._T = np.zeros((3, n, n))
+        self._Pp = np.zeros((3, n, n))      # predicted covariance
+        self._Y = np.zeros((3, n, n))       # information matrix
+        self._Q = np.zeros((3, n, n))       # this tick's process noise (contact set and weights)
+        self._Qd_xy = _diag_view(self._Q)[:2, 2:]
+        self._C = np.zeros((3, n, n))       # this tick's measurement information
+        self._sets: dict[int, _ContactSet] = {}
+        self._last = None                   # (contact set, weights) _Q and _C were made for
         self._contact = np.zeros(nf, dtype=bool)
-        # per-foot settle ramp and measurement weight (see the module docstring)
+        # per-foot settle ramp and measurement weight (see the module docstring), plain floats
         self._settle_ticks = float(p.touchdown_settle_s) / dt
-        self._since_on = np.zeros(nf)       # ticks since the contact flag turned on (counts from 1)
-        self._ramp = np.ones(nf)
-        self._w = np.ones(nf)
-        self._trust_in = np.ones(nf)
-        self._trust_pos = np.ones(nf, dtype=bool)
+        self._since_on = [0.0] * nf          # ticks since the contact flag turned on (counts from 1)
+        self._ramp = [1.0] * nf
+        self._w = [1.0] * nf
         self.state = EstimatorState(foot_pos=np.zeros((nf, 3)))
         self._initial_height_m: float | None = None
         self._initial_xy = (0.0, 0.0)
@@ -351,22 +404,28 @@ class LegImuEstimator:
         optional height pseudo-measurement (e.g. from a terrain map)."""
         self.ground_height_m = float(z_m)
 
-    def _start(self, contact: np.ndarray) -> None:
+    def _start(self, contact: list, rel: list) -> None:
         p = self.params
-        rel = self._rel_pos
-        use = contact if contact.any() else np.ones(self.n_feet, dtype=bool)
-        foot_z = float(np.mean(rel[use, 2] - self.radius[use]))   # ground below the trunk
+        nf = self.n_feet
+        use = [i for i in range(nf) if contact[i]] or list(range(nf))
+        foot_z = float(np.mean([rel[i][2] - self._rad[i] for i in use]))   # ground below the trunk
         pz = -foot_z if self._initial_height_m is None else self._initial_height_m
         self.ground_height_m = pz + foot_z
         x = self.x
         x[:] = 0.0
         x[0, 0], x[1, 0], x[2, 0] = self._initial_xy[0], self._initial_xy[1], pz
-        x[:, 2:] = x[:, 0:1] + rel.T
+        x[:, 2:] = x[:, 0:1] + np.array(rel).T
         self.P[:] = 0.0
         self._Pd[:, 0] = p.init_pos_std_m ** 2
         self._Pd[:, 1] = p.init_vel_std_mps ** 2
         self._Pd[:, 2:] = p.init_pos_std_m ** 2 + self._r_pos[:, None]
         self._started = True
+
+    def _contact_set(self, key: int) -> _ContactSet:
+        cs = self._sets.get(key)
+        if cs is None:
+            cs = self._sets[key] = _ContactSet(self, key)
+        return cs
 
     # ------------------------------------------------------------------- tick
     def update(self, obs, contact: np.ndarray | None = None, trust=None) -> EstimatorState:
@@ -379,141 +438,187 @@ class LegImuEstimator:
         multiplies the foot's weight (see the module docstring). A foot with
         trust 0 is treated as out of contact.
         """
-        nf = self.n_feet
-        rot = so3.quat_to_mat(obs.imu_quat, out=self._rot)
         kin = self.kin
+        # the model's trunk turned as the IMU says: the legs' readings come out in world axes (R r_i, R rdot_i)
+        kin.orientation[:] = obs.imu_quat
         kin.update(obs.joint_pos, obs.joint_vel, obs.imu_gyro)
-        np.matmul(kin.foot_pos, rot.T, out=self._rel_pos)     # rows: R r_i
-        np.matmul(kin.foot_vel, rot.T, out=self._rel_vel)     # rows: R rdot_i
-        # a round foot rolls: with the contact point at rest its centre moves at
-        # w x (radius e_z) = radius (w_y, -w_x, 0), w the foot's world angular velocity
-        w = np.matmul(kin.foot_angvel, rot.T, out=self._foot_w)
-        roll = self._roll
-        np.multiply(w[:, 1], self.radius, out=roll[:, 0])
-        np.multiply(w[:, 0], self.radius, out=roll[:, 1])
-        np.negative(roll[:, 1], out=roll[:, 1])
         c = self._contact
         c[:] = obs.foot_contact if contact is None else contact
-        self._weigh(c, trust)
-        roll *= self._ramp[:, None]          # a landing foot skids before it rolls
-        acc = self._acc
-        np.matmul(rot, obs.imu_accel, out=acc)
-        acc += self.gravity
-
+        cl = c.tolist()
+        key = self._weigh(cl, trust)
+        rel = kin.foot_pos.tolist()           # R r_i
+        vel6 = kin.foot_vel6.tolist()         # per foot: world angular velocity, then R rdot_i
         if not self._started:
-            self._start(c)
+            self._start(cl, rel)
         else:
-            self._predict(c)
-            self._correct()
+            self._step(key, rel, vel6, obs.imu_accel.tolist())
         self._publish(obs.t)
         return self.state
 
-    def _weigh(self, c: np.ndarray, trust) -> None:
-        """Settle ramps and weights this tick; a foot whose trust is 0 is dropped from the contact set."""
-        since = self._since_on
-        since += 1.0
-        np.multiply(since, c, out=since)
-        ramp, w = self._ramp, self._w
-        if self._settle_ticks > 0.0:
-            # smooth 0 -> 1 ramp (3x^2 - 2x^3) over the settle time, first stance tick at x = 1/n
-            np.divide(since, self._settle_ticks, out=ramp)
-            np.clip(ramp, 0.0, 1.0, out=ramp)
-            ramp *= ramp * (3.0 - 2.0 * ramp)
-        else:
-            ramp[:] = 1.0
-        if self.params.settle_weighs_velocity:
-            w[:] = ramp
-        else:
-            w[:] = 1.0
+    def _weigh(self, c: list, trust) -> int:
+        """Settle ramps and weights this tick; a foot whose trust is 0 is dropped from the contact set.
+        Returns the contact set as a bit mask."""
+        since, ramp, w = self._since_on, self._ramp, self._w
+        settle = self._settle_ticks
+        weigh_velocity = self.params.settle_weighs_velocity
+        tl = None
         if trust is not None:
-            t = self._trust_in
-            t[:] = trust
-            np.clip(t, 0.0, 1.0, out=t)
-            w *= t
-            np.greater(t, 0.0, out=self._trust_pos)
-            np.logical_and(c, self._trust_pos, out=c)
-        np.maximum(w, MIN_TRUST, out=w)
+            tl = trust.tolist() if isinstance(trust, np.ndarray) else [float(t) for t in trust]
+        key = 0
+        for i in range(self.n_feet):
+            s = since[i] = since[i] + 1.0 if c[i] else 0.0
+            if settle > 0.0:
+                # smooth 0 -> 1 ramp (3x^2 - 2x^3) over the settle time, first stance tick at x = 1/n
+                r = s / settle
+                r = 0.0 if r < 0.0 else (1.0 if r > 1.0 else r)
+                r *= r * (3.0 - 2.0 * r)
+            else:
+                r = 1.0
+            ramp[i] = r
+            wi = r if weigh_velocity else 1.0
+            if tl is not None:
+                t = tl[i]
+                t = 0.0 if t < 0.0 else (1.0 if t > 1.0 else t)
+                wi *= t
+                if not t > 0.0:
+                    c[i] = False
+            w[i] = wi if wi > MIN_TRUST or wi != wi else MIN_TRUST
+            if c[i]:
+                key |= 1 << i
+        return key
 
-    def _predict(self, contact: np.ndarray) -> None:
-        dt = self.dt
-        x, P = self.x, self.P
-        a = self._acc
-        # an accelerometer sample describes the motion just before it was read
-        # (here: the physics step that ended at this tick), so it drives the
-        # prediction from the previous tick to this one
-        t3 = self._t3
-        np.multiply(x[:, 1], dt, out=t3)
-        x[:, 0] += t3
-        np.multiply(a, 0.5 * dt * dt, out=t3)
-        x[:, 0] += t3
-        np.multiply(a, dt, out=t3)
-        x[:, 1] += t3
-        np.multiply(self._roll.T, dt, out=self._roll_step)
-        x[:, 2:] += self._roll_step          # released feet are re-seated after the update anyway
-        # P <- A P A^T with A = I + dt e_p e_v^T: a row operation, then a column operation
-        t3n = self._t3n
-        np.multiply(P[:, 1, :], dt, out=t3n)
-        P[:, 0, :] += t3n
-        np.multiply(P[:, :, 1], dt, out=t3n)
-        P[:, :, 0] += t3n
-        self._Pv += self._q_pv
+    def _step(self, key: int, rel: list, vel6: list, accel: list) -> None:
+        """Predict to this tick and correct with this tick's leg readings."""
+        nf, dt = self.n_feet, self.dt
+        cs = self._contact_set(key)
+        w, ramp, rad = self._w, self._ramp, self._rad
+        # body -> world with the posed trunk's rotation; a = R a_imu + g
+        r0, r1, r2, r3, r4, r5, r6, r7, r8 = self.kin.rot.tolist()
+        ax, ay, az = accel
+        g = self._g
+        acc = (r0 * ax + r1 * ay + r2 * az + g[0], r3 * ax + r4 * ay + r5 * az + g[1],
+               r6 * ax + r7 * ay + r8 * az + g[2])
+        # a round foot rolls: with the contact point at rest its centre moves at w x (radius e_z)
+        # = radius (w_y, -w_x, 0), w the foot's world angular velocity; a landing foot skids before
+        # it rolls (its settle ramp scales the term). Velocity reading: roll_i - R rdot_i.
+        roll_x = [vel6[i][1] * rad[i] * ramp[i] for i in range(nf)]
+        roll_y = [-(vel6[i][0] * rad[i]) * ramp[i] for i in range(nf)]
 
-        # stance feet may creep (slip, contact compression), a settling foot freely (its
-        # weight divides the variance); released feet are reset after the update
-        np.divide(self._q_stance[:2, None], self._w[None, :], out=self._q_feet[:2])
-        self._Pd_feet += self._q_feet
-        self._active[:] = contact
+        # ---- prediction. An accelerometer sample describes the motion just before it was read
+        # (here: the physics step that ended at this tick), so it drives the prediction from the
+        # previous tick to this one.
+        xl = self.x.tolist()
+        half_dt2 = 0.5 * dt * dt
+        for a in range(3):
+            xa = xl[a]
+            xa[0] += xa[1] * dt + acc[a] * half_dt2
+            xa[1] += acc[a] * dt
+        for i in range(nf):                 # released feet are re-seated after the update anyway
+            xl[0][2 + i] += roll_x[i] * dt
+            xl[1][2 + i] += roll_y[i] * dt
+        # P <- A P A^T (* keep: a released foot's row and column cleared) + Q
+        Pp = self._Pp
+        np.matmul(self._A, self.P, out=self._T)
+        np.matmul(self._T, self._At, out=Pp)
+        if cs.keep is not None:
+            Pp *= cs.keep
+        # this tick's Q and measurement information depend on the contact set and the weights
+        wkey = (key, *[w[i] for i in cs.active])
+        if wkey != self._last:
+            self._make_noise(cs)
+            self._last = wkey
+        Pp += self._Q
 
-    def _correct(self) -> None:
-        nf = self.n_feet
-        x, P, H = self.x, self.P, self.H
-        y, r, mask = self._y, self._r, self._mask
-        active = self._active
-        # rows of a foot out of contact are left out exactly (zero row, zero reading)
-        mask[:, :nf] = active
-        mask[:, nf:2 * nf] = active
-        mask[2, 2 * nf:] = active
-        np.multiply(self._H0, mask[:, :, None], out=H)
-        y[:, :nf] = self._rel_pos.T
-        np.subtract(self._roll.T, self._rel_vel.T, out=y[:, nf:2 * nf])
-        if self._height_on:
-            y[2, 2 * nf:] = self.radius
-            y[2, 2 * nf:] += self.ground_height_m
-        y *= mask
+        if not cs.n_active:                 # nothing measured: the prediction stands
+            self.P[:] = Pp
+            self.state.nis = 0.0
+            self.state.n_stance = 0
+            for a in range(3):
+                xa = xl[a]
+                for i in range(nf):
+                    xa[2 + i] = xa[0] + rel[i][a]
+            self.x[:] = xl
+            return
 
-        np.matmul(H, x[:, :, None], out=self._hx)
-        np.subtract(y, self._hx[:, :, 0], out=self._e)
-        np.matmul(H, P, out=self._HP)
-        np.matmul(self._HP, self._Ht, out=self._S)
-        np.divide(self._r_vel[:2, None], self._w[None, :], out=r[:2, nf:2 * nf])
-        self._Sd += r
-        # one solve gives the gain (S^-1 H P) and S^-1 e for the consistency figure
-        self._rhs[:, :, :self.n] = self._HP
-        self._rhs[:, :, self.n] = self._e
-        _solve(self._S, self._rhs, self._sol)
-        np.matmul(self._e_row, self._KT, out=self._dx)
-        x += self._dx[:, 0, :]
-        tmp = self._tmp_nn
-        np.matmul(self._HP.transpose(0, 2, 1), self._KT, out=tmp)
-        P -= tmp
-        np.add(P, P.transpose(0, 2, 1), out=tmp)
-        np.multiply(tmp, 0.5, out=P)
+        # ---- correction, information form. With the measurements y = H x + noise (R diagonal):
+        #   Y = P^-1 + H^T R^-1 H,  P+ = Y^-1,  x+ = x + P+ b,  b = H^T R^-1 (y - H x)
+        # (the Woodbury identity turns the standard form's S = H P H^T + R into this). H^T R^-1 H
+        # depends on the contact set (cached) and the horizontal velocity weights; b and the
+        # innovation's consistency figure are a few sums per axis, taken here in plain floats.
+        Y = self._Y
+        _inv(Pp, Y)
+        Y += self._C
+        inv_rpos, inv_rvel = self._inv_rpos, self._inv_rvel
+        ground, inv_rh = self.ground_height_m, self._inv_rh
+        height_on = self._height_on
+        active = cs.active
+        bl = []
+        quad = 0.0                          # e^T R^-1 e over the measurements
+        for a in range(3):
+            xa = xl[a]
+            p, v = xa[0], xa[1]
+            ip = inv_rpos[a]
+            iv = inv_rvel[a]
+            b = [0.0] * (2 + nf)
+            bp = bv = 0.0
+            for i in active:
+                j = 2 + i
+                e = rel[i][a] - (xa[j] - p)                  # f_i - p = R r_i
+                bi = e * ip
+                quad += e * bi
+                bp -= bi
+                if a == 0:
+                    ev = roll_x[i] - vel6[i][3] - v          # v = roll_i - R rdot_i
+                    om = w[i] * iv
+                elif a == 1:
+                    ev = roll_y[i] - vel6[i][4] - v
+                    om = w[i] * iv
+                else:
+                    ev = -vel6[i][5] - v
+                    om = iv
+                    if height_on:                            # f_i,z = ground + radius_i
+                        eh = ground + rad[i] - xa[j]
+                        bh = eh * inv_rh
+                        quad += eh * bh
+                        bi += bh
+                bv += om * ev
+                quad += om * ev * ev
+                b[j] = bi
+            b[0], b[1] = bp, bv
+            bl.append(b)
+        self._b[:] = bl
+        _solve(Y, self._rhs, self._sol)                     # P+ and dx = P+ b, P written in place
+        dx = self._dx.tolist()
+        bdx = 0.0
+        for a in range(3):
+            xa, da, ba = xl[a], dx[a], bl[a]
+            for j in range(2 + nf):
+                xa[j] += da[j]
+                bdx += ba[j] * da[j]
+            # a released foot: seated at the leg's reach (its covariance was reset in the prediction)
+            for i in cs.released:
+                xa[2 + i] = xa[0] + rel[i][a]
+        self.x[:] = xl
+        # normalised innovation squared e^T S^-1 e = e^T R^-1 e - b^T P+ b (Woodbury again)
+        self.state.nis = (quad - bdx) / cs.dof
+        self.state.n_stance = cs.n_active
 
-        np.multiply(self._e, self._Sinv_e, out=self._nis_terms)
-        n_active = int(np.count_nonzero(active))
-        dof = n_active * (6 + (1 if self._height_on else 0))
-        self.state.nis = float(self._nis_terms.sum()) / dof if dof else 0.0
-        self.state.n_stance = n_active
-
-        # a released foot: seated at the leg's reach, uncorrelated, uncertain; caught where it lands
-        if n_active < nf:
-            for i in range(nf):
-                if not active[i]:
-                    j = 2 + i
-                    np.add(x[:, 0], self._rel_pos[i], out=x[:, j])
-                    P[:, j, :] = 0.0
-                    P[:, :, j] = 0.0
-                    P[:, j, j] = RELEASED_FOOT_VAR_M2
+    def _make_noise(self, cs: _ContactSet) -> None:
+        """This tick's process noise Q and measurement information C from the contact set and the weights."""
+        w, qs, iv = self._w, self._qs, self._inv_rvel
+        Q, C = self._Q, self._C
+        Q[:] = cs.Q
+        C[:] = cs.C
+        # stance feet may creep (slip, contact compression), a settling foot freely (its weight divides
+        # the variance); the horizontal velocity rows of foot i carry w_i / r_vel of information
+        qd = self._Qd_xy
+        sw = 0.0
+        for i in cs.active:
+            qd[0, i] = qs[0] / w[i]
+            qd[1, i] = qs[1] / w[i]
+            sw += w[i]
+        C[0, 1, 1] = sw * iv[0]
+        C[1, 1, 1] = sw * iv[1]
 
     def _publish(self, t: float) -> None:
         s = self.state
