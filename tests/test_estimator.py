@@ -89,6 +89,20 @@ def test_trunk_frame_feet_agree_with_the_world_posed_kinematics():
     assert np.allclose(obs.privileged.base_pos + feet.foot_pos @ rot.T, world.foot_pos, atol=1e-12)
     assert np.allclose(obs.privileged.base_linvel + feet.foot_vel @ rot.T, world.foot_vel, atol=1e-12)
     assert np.allclose(feet.foot_radius_m, ROBOT.model.geom_size[ROBOT.foot_geom_ids][:, 0])
+    # the feet's angular velocity: MuJoCo's rotational site Jacobian times the velocity, trunk frame
+    d = feet.data
+    jr = np.zeros((3, ROBOT.model.nv))
+    for i, site in enumerate(ROBOT.foot_site_ids):
+        mujoco.mj_jacSite(ROBOT.model, d, None, jr, int(site))
+        assert np.allclose(feet.foot_angvel[i], jr @ d.qvel, atol=1e-12)
+    # posed at the trunk's orientation, the same readings come out in world axes (R r, R rdot, R w)
+    trunk = (feet.foot_pos.copy(), feet.foot_vel.copy(), feet.foot_angvel.copy())
+    turned = TrunkFrameFeet(ROBOT)
+    turned.orientation[:] = 2.0 * obs.imu_quat                 # need not be of unit length
+    turned.update(obs.joint_pos, obs.joint_vel, obs.imu_gyro)
+    for got, ref in zip((turned.foot_pos, turned.foot_vel, turned.foot_angvel), trunk):
+        assert np.allclose(got, ref @ rot.T, atol=1e-12)
+    assert np.allclose(turned.rot.reshape(3, 3), rot, atol=1e-12)
 
 
 def test_prediction_matches_constant_acceleration_kinematics():

@@ -24,7 +24,8 @@ acceleration (the discrete white-noise-acceleration model).
 
 Measurements, per foot ``i``, with ``r_i`` and ``rdot_i`` the foot position and
 velocity relative to the trunk, trunk frame, from the joint encoders and the
-gyro (:class:`~bench.controllers.trunk_kinematics.TrunkFrameFeet`)::
+gyro (:class:`~bench.controllers.trunk_kinematics.TrunkFrameFeet`, which gives
+``R r_i`` and ``R rdot_i`` directly when posed at the IMU's orientation)::
 
     f_i - p = R r_i                   every foot (the leg's length and direction)
     v       = -R rdot_i + roll_i      a stance foot does not slide in the world
@@ -81,8 +82,30 @@ Structure used: every noise is diagonal in world axes (the accelerometer's is
 isotropic, and ``s^2 I`` stays ``s^2 I`` under any rotation; the kinematic
 ones may be given per world axis) and every model acts on each world axis
 alone, so the filter is exactly three independent filters of size ``2 + F``,
-one per world axis, run batched as ``(3, ...)`` arrays. Arrays are allocated
-once in the constructor; a tick creates no arrays.
+one per world axis, run batched as ``(3, ...)`` arrays.
+
+Computation (the same filter as the standard form above, to rounding; a test
+checks it against a plain standard-form Kalman filter on the whole state):
+
+- the measurement update is in information form (the Woodbury identity):
+  ``Y = P^-1 + H^T R^-1 H``, ``P+ = Y^-1``, ``x+ = x + P+ b`` with
+  ``b = H^T R^-1 (y - H x)``, one inverse of the predicted ``P`` and one
+  solve ``Y [P+ | dx] = [I | b]`` per tick, both ``(2 + F)``-square, instead
+  of a solve with the ``3F``-square innovation covariance. ``H^T R^-1 H``
+  depends only on the set of feet in contact and the feet's horizontal
+  velocity weights: the contact set's part, the process noise's and the mask
+  that clears a released foot are made once per set (a dict keyed by the
+  contact bit mask), the weights' part when they change. The consistency
+  figure comes out of the same sums: ``e^T S^-1 e = e^T R^-1 e - b^T P+ b``;
+- per-tick work on a few numbers (weights, rolling term, the prediction of
+  ``x``, ``b``) is done on plain Python floats, cheaper than numpy calls on
+  arrays of 3 or 4;
+- the leg readings come out already rotated into world axes: the nominal
+  model's trunk is posed at the IMU's orientation, its foot velocities taken
+  from MuJoCo's ``mj_objectVelocity`` (:class:`~bench.controllers.trunk_kinematics.TrunkFrameFeet`).
+
+Arrays are allocated once in the constructor (the per-contact-set constants
+the first time a set occurs).
 
 Health: ``pos_std_m`` and ``vel_std_mps`` are the filter's own standard
 deviations; ``nis`` is the normalised innovation squared per stance-foot
