@@ -124,34 +124,42 @@ def test_forces_equal_with_and_without_the_log(tmp_path, monkeypatch):
     assert len(np.unique(with_log["torque_limit"], axis=0)) == 2
 
 
-def test_rebuild_handles_elliptic_cones_and_frictionless_contacts():
-    """rebuild_forces against mj_contactForce on synthetic records for each cone and contact dimension."""
+def test_rebuild_handles_cones_dimensions_and_several_contacts_per_foot():
+    """rebuild_forces against the per-tick path on a small world, for each cone and contact dimension; foot 0
+    is a box (four contacts with the floor, summed in contact order), foot 1 a sphere, some ticks logged."""
     xml = """<mujoco><option cone="{cone}"/><worldbody><geom name="floor" type="plane" size="5 5 .1"/>
-      <body pos="0 0 .1"><freejoint/><geom name="a" type="sphere" size=".1" condim="{dim}" friction="0.7 0.01 0.002"/></body>
-      <body pos=".3 0 .1"><freejoint/><geom name="b" type="sphere" size=".1" condim="{dim}"/></body>
+      <body pos="0 0 .1"><freejoint/><geom name="a" type="box" size=".1 .08 .05" condim="{dim}"
+        friction="0.7 0.01 0.002" euler="0 3 2"/></body>
+      <body pos=".4 0 .1"><freejoint/><geom name="b" type="sphere" size=".1" condim="{dim}"/></body>
       </worldbody></mujoco>"""
     for cone in ("pyramidal", "elliptic"):
         for dim in (1, 3, 4, 6):
             m = mujoco.MjModel.from_xml_string(xml.format(cone=cone, dim=dim))
             d = mujoco.MjData(m)
-            d.qvel[0], d.qvel[6 + 1] = 0.4, -0.3           # sliding: friction forces not zero
+            d.qvel[0], d.qvel[5], d.qvel[6 + 1] = 0.4, 2.0, -0.3      # sliding and turning: friction at work
             for _ in range(30):
                 mujoco.mj_step(m, d)
-            assert d.ncon == 2
             table = ContactTable(m.ngeom, [0], [1, 2], [])
             table.bind_raw(m, d)
             assert table.view is not None
-            out = np.zeros((1, 6))
+            out = np.zeros((40, 6))
+            expect = np.zeros((40, 6))
             table.start_log(m, out)
-            mujoco.mj_step1(m, d)
-            table.classify(d, np.zeros(2, dtype=bool))
-            mujoco.mj_step2(m, d)
-            expect = np.zeros(6)
-            table.forces(m, d, expect)
-            table.log(d, 0)
+            most = 0
+            for k in range(40):
+                mujoco.mj_step1(m, d)
+                table.classify(d, np.zeros(2, dtype=bool))
+                mujoco.mj_step2(m, d)
+                table.forces(m, d, expect[k])
+                most = max(most, sum(1 for _, _, foot in table._found if foot == 0))
+                if k % 3:
+                    table.log(d, k)
+                else:                       # ticks not logged stay as they were
+                    expect[k] = 0.0
             table.flush()
-            assert out[0].tobytes() == expect.tobytes(), (cone, dim)
-            assert np.abs(out[0]).max() > 0
+            assert out.tobytes() == expect.tobytes(), (cone, dim)
+            assert np.abs(out).max() > 0
+            assert most >= 2, "the box foot had several contacts in one tick"
 
 
 class _Copies:

@@ -282,14 +282,20 @@ def rebuild_forces(entries: np.ndarray, plan_found, records: np.ndarray, efc: np
     (contact, sign, foot); ``records``: contact records (structured, :class:`~bench.sim.rawmem.ContactView`'s
     dtype); ``efc``: the logged ``efc_force`` values. Each product and sum is the one ``mj_contactForce``
     and the per-tick rotation do, in the same order (elementwise numpy operations round as the scalar ones),
-    and the per-foot sums go in contact order (``np.add.at`` applies repeated indices in order).
+    and a foot's contacts are added to its zeroed row one after the other, in contact order.
     """
     E = len(entries)
     pid = entries[:, 1]
     lens = np.array([len(f) for f in plan_found], dtype=np.int64)
-    flat_i = np.array([i for f in plan_found for i, _, _ in f] or [0], dtype=np.int64)
-    flat_sign = np.array([s for f in plan_found for _, s, _ in f] or [1.0])
-    flat_foot = np.array([ft for f in plan_found for _, _, ft in f] or [0], dtype=np.int64)
+    flat_i, flat_sign, flat_foot, flat_rank = [], [], [], []
+    for found in plan_found:
+        before: dict[int, int] = {}
+        for i, sign, foot in found:
+            flat_i.append(i)
+            flat_sign.append(sign)
+            flat_foot.append(foot)
+            flat_rank.append(before.get(foot, 0))   # earlier contacts of the same foot in this plan
+            before[foot] = before.get(foot, 0) + 1
     plan_off = np.cumsum(lens) - lens
     n_rows = lens[pid]
     N = int(n_rows.sum())
@@ -298,12 +304,16 @@ def rebuild_forces(entries: np.ndarray, plan_found, records: np.ndarray, efc: np
         return acc
     row = np.repeat(np.arange(E), n_rows)                       # entry of each found contact
     first = np.cumsum(n_rows) - n_rows
-    flat = plan_off[pid][row] + (np.arange(N) - first[row])
-    ci, sign, foot = flat_i[flat], flat_sign[flat], flat_foot[flat]
-    rec = records[entries[row, 2] + ci]
-    frame, mu = rec["frame"], rec["friction"]
-    dim = rec["dim"].astype(np.int64)
-    adr = rec["efc_address"].astype(np.int64)
+    flat = np.arange(N) - (first - plan_off[pid])[row]          # index into the plans' flat lists
+    ci = np.array(flat_i, dtype=np.int64)[flat]
+    sign = np.array(flat_sign)[flat]
+    j = 3 * np.array(flat_foot, dtype=np.int64)[flat]
+    rank = np.array(flat_rank, dtype=np.int64)[flat]
+    at = entries[row, 2] + ci
+    frame = records["frame"][at]
+    mu = records["friction"][at]
+    dim = records["dim"][at].astype(np.int64)
+    adr = records["efc_address"][at].astype(np.int64)
     base = entries[row, 3] + adr
     c0, c1, c2 = np.zeros(N), np.zeros(N), np.zeros(N)      # mj_contactForce zeroes its result first
     ok = adr >= 0
@@ -312,8 +322,8 @@ def rebuild_forces(entries: np.ndarray, plan_found, records: np.ndarray, efc: np
         b = base[sel]
         if pyramidal and dv > 1:   # mju_decodePyramid: normal = 0 + each facet in turn; tangent = (p+ - p-) mu
             s = np.zeros(len(sel))
-            for j in range(2 * (dv - 1)):
-                s += efc[b + j]
+            for q in range(2 * (dv - 1)):
+                s += efc[b + q]
             c0[sel] = s
             c1[sel] = (efc[b] - efc[b + 1]) * mu[sel, 0]
             if dv > 2:
@@ -326,8 +336,15 @@ def rebuild_forces(entries: np.ndarray, plan_found, records: np.ndarray, efc: np
                 c2[sel] = efc[b + 2]
     neg = sign < 0.0
     c0, c1, c2 = np.where(neg, -c0, c0), np.where(neg, -c1, c1), np.where(neg, -c2, c2)
-    j = 3 * foot
-    np.add.at(acc, (row, j), frame[:, 0] * c0 + frame[:, 3] * c1 + frame[:, 6] * c2)
-    np.add.at(acc, (row, j + 1), frame[:, 1] * c0 + frame[:, 4] * c1 + frame[:, 7] * c2)
-    np.add.at(acc, (row, j + 2), frame[:, 2] * c0 + frame[:, 5] * c1 + frame[:, 8] * c2)
+    v0 = frame[:, 0] * c0 + frame[:, 3] * c1 + frame[:, 6] * c2
+    v1 = frame[:, 1] * c0 + frame[:, 4] * c1 + frame[:, 7] * c2
+    v2 = frame[:, 2] * c0 + frame[:, 5] * c1 + frame[:, 8] * c2
+    # acc[row, j] += v adds once per distinct (row, j) in one call: a foot's second contact of a tick goes
+    # in a second pass (rank 1), and so on, so each foot's row is summed in contact order.
+    for r in range(int(rank.max()) + 1):
+        sel = slice(None) if r == 0 and not rank.any() else np.flatnonzero(rank == r)
+        rr, jj = row[sel], j[sel]
+        acc[rr, jj] += v0[sel]
+        acc[rr, jj + 1] += v1[sel]
+        acc[rr, jj + 2] += v2[sel]
     return acc
