@@ -306,3 +306,23 @@ def test_observation_arrays_are_views_of_one_buffer():
     assert buf.shape == (10 + 24 + 6,)
     o2, buf2, parts2 = episode_module._buffered_observation(12, 4, False)
     assert o2.privileged is None and buf2.shape == (34,) and parts2[6:] == (None, None, None)
+
+
+@pytest.mark.parametrize("bad", [np.nan, np.inf, -np.inf])
+def test_non_finite_state_ends_the_episode_at_that_tick(tmp_path, monkeypatch, bad):
+    """The state check after the tick's physics (a dot product with zeros) sees a NaN or an infinity."""
+    sc = _scenario(tmp_path, "name: s\nduration: 0.2\n")
+    real_step = mujoco.mj_step
+    calls = []
+
+    def step(m, d):
+        real_step(m, d)
+        calls.append(1)
+        if len(calls) == 41:           # tick 40's plain mj_step (after its mj_step1/mj_step2)
+            d.qvel[7] = bad
+
+    monkeypatch.setattr(mujoco, "mj_step", step)
+    ep = _run(sc, "joint-pd")
+    assert ep.status == "error"
+    assert ep.reason.startswith("non-finite state (NaN or infinity in qpos/qvel) at tick 40 "), ep.reason
+    assert len(ep.trace) == 41

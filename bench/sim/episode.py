@@ -502,6 +502,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
         o_q, o_v = view.offsets["qpos"], view.offsets["qvel"]
         # qpos and qvel side by side (as MuJoCo lays them out): one list for the finiteness check
         state = flat[o_q:o_q + nq + nv] if o_v == o_q + nq else None
+        state_zeros = np.zeros(nq + nv)
     else:
         state = None
     contacts.bind_raw(m, d)
@@ -561,6 +562,11 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     # Module attributes the tick uses, bound once.
     perf_counter, mj_step1, mj_step2, mj_step = time.perf_counter, mujoco.mj_step1, mujoco.mj_step2, mujoco.mj_step
     more_substeps = range(substeps - 1)
+    shape_j = (J,)
+    cmd_list = list(cmd_rows)   # the rows as arrays of their own: no row view made per tick
+    # The fault plan's per-tick hooks as local flags, refreshed when faults switch on (the only time they change).
+    next_fault = faults.next_tick
+    fault_obs, fault_cmd, fault_app = bool(faults.observers), bool(faults.commanders), bool(faults.appliers)
     cpu0 = time.process_time()
     wall0 = time.perf_counter()
     step = 0
@@ -578,8 +584,10 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                     m.geom_contype[p.geom_id] = payload_geom_contype[i] if visible else 0
                     m.geom_rgba[p.geom_id, 3] = base_rgba_alpha[i] if visible else 0.0
                     payload_mass[i] = mass
-            if k == faults.next_tick:   # faults switching on (derated limits, a lock's constraint...)
+            if k == next_fault:   # faults switching on (derated limits, a lock's constraint...)
                 faults.switch(k)
+                next_fault = faults.next_tick
+                fault_obs, fault_cmd, fault_app = bool(faults.observers), bool(faults.commanders), bool(faults.appliers)
                 np.negative(limit_now, out=neg_limit)
 
             if has_forces:
@@ -628,9 +636,9 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 R_xipos[k] = xipos
             if P:
                 R_payload[k] = payload_mass
-            if faults.observers:   # sensor faults act on what the controller sees, never on the record
+            if fault_obs:   # sensor faults act on what the controller sees, never on the record
                 faults.observe(ctrl_obs)
-            ctrl_command[:] = cmd_rows[k]
+            ctrl_command[:] = cmd_list[k]
 
             # The controller.
             c0 = watchdog.call_start = perf_counter()
@@ -671,7 +679,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                     raise
                 status, reason = "error", raised_reason(exc, f"converting its torques at tick {k} (t={t:.3f} s)")
                 break
-            if tau.shape != (J,):
+            if tau.shape != shape_j:
                 what = "None" if tau.shape == () and math.isnan(float(tau)) else f"torques of shape {tau.shape}"
                 status, reason = "error", (f"controller returned {what} at tick {k} (t={t:.3f} s); "
                                            f"expected {J} torques, shape ({J},)")
@@ -695,13 +703,13 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
 
             # Faults on the command (latency), the limits, faults on the applied torque (limp joints),
             # then hold until the next tick.
-            if faults.commanders:
+            if fault_cmd:
                 tau = faults.command(k, tau)
                 np.negative(limit_now, out=neg_limit)
             applied = applied_buf if ctrl_act is None else ctrl_act
             np.minimum(tau, limit_now, out=applied)
             np.maximum(applied, neg_limit, out=applied)
-            if faults.appliers:
+            if fault_app:
                 faults.apply(applied)
             if ctrl_act is None:
                 d.ctrl[act_s] = applied
@@ -739,8 +747,10 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 physics_fault = True
                 k += 1
                 break
-            if not math.isfinite(sum(state.tolist()) if state is not None
-                                 else sum(qpos.tolist()) + sum(qvel.tolist())):  # any NaN or infinity makes it so
+            # x * 0 is NaN for a NaN or an infinity and 0 otherwise: the dot product with zeros is finite
+            # exactly when every element is
+            if not math.isfinite(state.dot(state_zeros) if state is not None
+                                 else sum(qpos.tolist()) + sum(qvel.tolist())):
                 status, reason = "error", (f"non-finite state (NaN or infinity in qpos/qvel) at tick {k} "
                                            f"(t={t:.3f}-{step * dt:.3f} s)")
                 physics_fault = True
