@@ -17,7 +17,8 @@ the last bit as a ``frame.T @ f`` per contact.
 The episode loop does not compute those forces tick by tick: after each control tick's
 ``mj_step2`` it only logs the raw records (the contact records up to the last foot contact,
 bytes as MuJoCo has them, and the constraint forces ``efc_force``) into chunked buffers
-(:meth:`ContactTable.log`), and every ``LOG_TICKS`` ticks, and at the end, :meth:`ContactTable.flush`
+(:meth:`ContactTable.log`), and when they are full (``LOG_TICKS`` ticks of four foot contacts), and at the
+end, :meth:`ContactTable.flush`
 rebuilds the per-foot forces of those ticks at once, vectorised, with the same floating-point
 operations in the same order as ``mj_contactForce`` (its pyramid decoding, or the copy of an
 elliptic cone's forces) followed by the rotation and the per-foot sum: bit for bit the values of
@@ -84,8 +85,7 @@ class ContactTable:
         self.view: ContactView | None = None   # raw contact records (bind_raw), else the bindings
         self._raw_tried = False
         self.logging = False   # True once start_log's log runs (needs the raw view)
-        self._ncon = 0
-        self._plan_now: tuple | None = None
+        self._log_key = (0, 0)   # (plan id, bytes of contact records to log) of this instant
         # The force log (start_log): per plan id its found contacts, flat; per logged tick one entry.
         self._log_out: np.ndarray | None = None
         self._plan_found: list[list[tuple[int, float, int]]] = []
@@ -101,24 +101,24 @@ class ContactTable:
         if d.ncon > 0:
             self._raw_tried = True
             self.view = ContactView.build(m, d)
+            if self.view is not None:
+                self._geom, self._dist = self.view.geom, self.view.dist
             if self.view is not None and self._log_out is not None and not self.logging:
                 self._begin_log()
 
     def classify(self, d: mujoco.MjData, foot_contact: np.ndarray) -> bool:
         """Mark feet touching the ground in ``foot_contact`` (cleared by the caller); True on a fall contact."""
         ncon = d.ncon
-        self._ncon = ncon
         if not ncon:
             self._found = []
-            self._plan_now = None
             return False
         view = self.view
         if view is None and not self._raw_tried and hasattr(self, "_d") and d is self._d:
             self.bind_raw(self._m, d)
             view = self.view
         if view is not None and d is self._d:
-            geom = view.geom[:ncon]
-            dist_src = view.dist
+            geom = self._geom[:ncon]
+            dist_src = self._dist
         else:
             con = d.contact
             geom = con.geom
@@ -134,9 +134,8 @@ class ContactTable:
                 self._plan_found.clear()
             plan = self._plan(geom.tolist())
             self._plans[key] = plan
-        feet, falls, found, _pid, _n = plan
+        feet, falls, found, self._log_key = plan
         self._found = found
-        self._plan_now = plan
         if not found and not falls:
             return False
         dist = dist_src[:ncon].tolist()
@@ -167,7 +166,8 @@ class ContactTable:
                 found.append((i, sign, force_foot))
         pid = len(self._plan_found)
         self._plan_found.append(found)
-        return feet, falls, found, pid, (found[-1][0] + 1 if found else 0)
+        isz = self.view.itemsize if self.view is not None else 0
+        return feet, falls, found, (pid, (found[-1][0] + 1) * isz if found else 0)
 
     def fall_parts(self, m: mujoco.MjModel, d: mujoco.MjData) -> str:
         """Which part of the robot touched what, for the fall reason (called once, when the robot fell)."""
@@ -221,45 +221,51 @@ class ContactTable:
             self._begin_log()
 
     def _begin_log(self) -> None:
-        self._entries: list[tuple[int, int, int, int]] = []   # (tick, plan id, first record, first efc row)
-        self._cbuf = np.zeros(LOG_TICKS * 4 * self.view.itemsize, dtype=np.uint8)
+        self._entries: list[tuple[int, int, int, int]] = []   # (tick, plan id, first record byte, first efc row)
+        self._cbuf = np.zeros(LOG_TICKS * 4 * self.view.itemsize, dtype=np.uint8)   # ~LOG_TICKS ticks of 4 feet
         self._ebuf = np.zeros(LOG_TICKS * 16)
-        self._cpos = 0   # in records
+        self._craw = self.view.bytes
+        self._cpos = 0   # bytes
         self._epos = 0
+        self._plans.clear()         # plans made before the view was bound know no record sizes
+        self._plan_found.clear()
         self.logging = True
 
     def log(self, d: mujoco.MjData, k: int) -> None:
         """After ``mj_step2`` of tick ``k``: keep the raw records its forces are made of (nothing without foot
-        contacts). ``classify`` saw this instant; ``start_log`` returned True."""
+        contacts): the contact records up to the last foot contact and ``efc_force``. ``classify`` saw this
+        instant; only while ``logging``."""
         if not self._found:
             return
-        _, _, _, pid, n = self._plan_now
+        pid, nb = self._log_key
         ef = d.efc_force
-        ne = ef.shape[0]
-        isz = self.view.itemsize
         p, q = self._cpos, self._epos
-        if len(self._entries) >= LOG_TICKS or (p + n) * isz > self._cbuf.shape[0] or q + ne > self._ebuf.shape[0]:
+        p2, q2 = p + nb, q + ef.shape[0]
+        if p2 > self._cbuf.shape[0] or q2 > self._ebuf.shape[0]:   # full: forces of the logged ticks now
             self.flush()
-            p = q = 0
-            if n * isz > self._cbuf.shape[0]:
-                self._cbuf = np.zeros(2 * n * isz, dtype=np.uint8)
-            if ne > self._ebuf.shape[0]:
-                self._ebuf = np.zeros(2 * ne)
-        self._cbuf[p * isz:(p + n) * isz] = self.view.bytes[:n * isz]
-        self._ebuf[q:q + ne] = ef
+            p, q = 0, 0
+            p2, q2 = nb, ef.shape[0]
+            if p2 > self._cbuf.shape[0]:
+                self._cbuf = np.zeros(2 * p2, dtype=np.uint8)
+            if q2 > self._ebuf.shape[0]:
+                self._ebuf = np.zeros(2 * q2)
+        self._cbuf[p:p2] = self._craw[:nb]
+        self._ebuf[q:q2] = ef
         self._entries.append((k, pid, p, q))
-        self._cpos = p + n
-        self._epos = q + ne
+        self._cpos, self._epos = p2, q2
 
     def flush(self) -> None:
         """Turn the logged ticks into per-foot forces (into the rows ``start_log`` was given) and empty the log."""
         if not self.logging or not self._entries:
             return
+        isz = self.view.itemsize
         ent = np.array(self._entries, dtype=np.int64)
+        ent[:, 2] //= isz     # byte offsets to record numbers
         self._entries = []
         self._cpos = self._epos = 0
-        self._log_out[ent[:, 0]] = rebuild_forces(
-            ent, self._plan_found, self._cbuf.view(self.view.dtype), self._ebuf, self.n_feet, self._pyramidal)
+        records = self._cbuf[:len(self._cbuf) - len(self._cbuf) % isz].view(self.view.dtype)
+        self._log_out[ent[:, 0]] = rebuild_forces(ent, self._plan_found, records, self._ebuf, self.n_feet,
+                                                  self._pyramidal)
 
     def normal_forces(self, m: mujoco.MjModel, d: mujoco.MjData, out: np.ndarray) -> None:
         """Each foot's summed normal contact force, N, into ``out`` (F,), over the contacts ``classify`` found.

@@ -454,11 +454,12 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     R_payload, R_torque, R_limit, R_ext = A["payload_mass"], A["joint_torque"], A["torque_limit"], A["ext_force"]
     R_force = A["foot_force"].reshape(n_ticks, -1)   # flat (3F,) rows, a view
     nq, nv, nb = m.nq, m.nv, m.nbody
-    cols = np.cumsum([0, nq, nv, 4, 3 * F, 3 * nb])   # qpos | qvel | trunk quat | foot sites | body COMs
+    cols = np.cumsum([0, nq, nv, 4, 3 * F, 3 * nb, J])   # qpos | qvel | trunk quat | foot sites | body COMs | ctrl
     R_row = np.zeros((n_ticks, int(cols[-1])))
     R_qpos, R_qvel, R_quat = R_row[:, cols[0]:cols[1]], R_row[:, cols[1]:cols[2]], R_row[:, cols[2]:cols[3]]
     R_feet = R_row[:, cols[3]:cols[4]].reshape(n_ticks, F, 3)
     R_xipos = R_row[:, cols[4]:cols[5]].reshape(n_ticks, nb, 3)
+    R_ctrl = R_row[:, cols[5]:cols[6]]   # the applied torques as MjData's ctrl holds them
     # Faults that change the limits (derating) switch on at a tick or act on the command: with none, the
     # limits are the nominal ones throughout and are filled in after the episode.
     record_limits = bool(faults.effects)
@@ -486,7 +487,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     # raw MjData view per tick (or field by field through the bindings where the view does not check).
     ctrl_obs, obs_buf, obs_parts = _buffered_observation(J, F, privileged)
     v_quat, v_gyro, v_accel, v_jpos, v_jvel, v_fc, v_priv, v_bpos, v_bvel = obs_parts
-    view = DataView.build(d, ("qpos", "qvel", "sensordata", "xquat", "site_xpos", "xipos"))
+    view = DataView.build(d, ("qpos", "qvel", "sensordata", "xquat", "site_xpos", "xipos", "ctrl"))
     if view is not None:
         flat = view.flat
         obs_idx = np.concatenate([view.index("sensordata", np.arange(iq, iq + 4)),
@@ -498,7 +499,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
         row_idx = np.concatenate([view.index("qpos"), view.index("qvel"),
                                   view.index("xquat", np.arange(4 * trunk, 4 * trunk + 4)),
                                   view.index("site_xpos", (3 * np.asarray(feet_sites)[:, None] + np.arange(3)).ravel()),
-                                  view.index("xipos")])
+                                  view.index("xipos"), view.index("ctrl", act)])
         o_q, o_v = view.offsets["qpos"], view.offsets["qvel"]
         # qpos and qvel side by side (as MuJoCo lays them out): one list for the finiteness check
         state = flat[o_q:o_q + nq + nv] if o_v == o_q + nq else None
@@ -514,6 +515,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
         pass
     status, reason = "completed", None
     ctrl_ms = A["controller_ms"]
+    ctrl_s = [0.0] * n_ticks   # controller call times, s (a list item is cheaper to set than an array's)
 
     # reset() may take long (building a solver): only the episode deadline applies to it.
     watchdog.call_limit_s = math.inf
@@ -625,15 +627,6 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 ctrl_obs.gait_hint = hint_of[hint_rows[k]]
             if sensors is not None:
                 sensors.observe(k, ctrl_obs)
-            # The true state of this instant (before any sensor fault).
-            if view is not None:
-                R_row[k] = flat[row_idx]
-            else:
-                R_qpos[k] = qpos
-                R_qvel[k] = qvel
-                R_quat[k] = xquat_trunk
-                R_feet[k] = site_xpos[feet_s]
-                R_xipos[k] = xipos
             if P:
                 R_payload[k] = payload_mass
             if fault_obs:   # sensor faults act on what the controller sees, never on the record
@@ -647,7 +640,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 watchdog.call_start = 0.0
             except _ControllerHung as hung:
                 watchdog.call_start = 0.0
-                ctrl_ms[k] = (time.perf_counter() - c0) * 1e3
+                ctrl_s[k] = time.perf_counter() - c0
                 status, reason = "timeout", _timeout_reason(hung, limits, f"at tick {k} (t={t:.3f} s)")
                 break
             except BaseException as exc:  # noqa: BLE001 - SystemExit, KeyboardInterrupt... of the controller
@@ -658,7 +651,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 reason = raised_reason(exc, f"at tick {k} (t={t:.3f} s)")
                 break
             c1 = perf_counter()
-            ctrl_ms[k] = (c1 - c0) * 1e3
+            ctrl_s[k] = c1 - c0
             if c1 - watchdog.checked_at > watchdog.period_s and watchdog.active:
                 watchdog.check(c1, f"tick {k} (t={t:.3f} s)")
             if c1 - c0 > tick_limit_s:
@@ -713,8 +706,17 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 faults.apply(applied)
             if ctrl_act is None:
                 d.ctrl[act_s] = applied
-            # Record the row of this instant (contact forces come from this step's solve, below).
-            R_torque[k] = applied
+            # Record the row of this instant: the true state (before any sensor fault; nothing has moved since
+            # mj_step1) and the torques in ctrl (contact forces come from this step's solve, below).
+            if view is not None:
+                R_row[k] = flat[row_idx]
+            else:
+                R_qpos[k] = qpos
+                R_qvel[k] = qvel
+                R_quat[k] = xquat_trunk
+                R_feet[k] = site_xpos[feet_s]
+                R_xipos[k] = xipos
+                R_ctrl[k] = applied
             if record_limits:
                 R_limit[k] = limit_now
 
@@ -779,6 +781,8 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     A["qpos"][:n] = R_qpos[:n]
     A["base_quat"][:n] = R_quat[:n]
     A["foot_pos"][:n] = R_feet[:n]
+    R_torque[:n] = R_ctrl[:n]
+    ctrl_ms[:n] = np.array(ctrl_s[:n]) * 1e3
     trace.truncate(n)
     if signals is not None:
         signals.into(trace.arrays, n)
