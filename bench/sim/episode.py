@@ -35,9 +35,19 @@ MuJoCo's warnings are captured while an episode runs (MuJoCo's own message
 text, instead of its default of printing and writing ``MUJOCO_LOG.TXT`` into
 the working folder); a fatal one ends the episode as ``error`` with that text.
 
+Per tick the runner's own work is kept small (see docs/explanation/speed.md): the
+state of the instant (qpos, qvel, the trunk's orientation, the foot sites, the body
+COMs, the applied torques) is one fancy-index copy from a raw view of MjData's memory
+into one row, the controller's observation one more (its arrays are views into one
+buffer), the foot contact forces are rebuilt after the episode from raw contact
+records logged per tick (:mod:`bench.sim.contacts`), and the trace's derived columns
+are filled vectorised after the loop; the raw views are checked against MuJoCo's
+bindings once (:mod:`bench.sim.rawmem`), with the bindings as the fallback.
+
 The controller gets only an :class:`~bench.controllers.base.Observation` and a
 command, its own copies refreshed every tick (what it does to them cannot change
-the recorded trace): the world model, the scenario, payloads and disturbances
+the recorded trace; if it replaces or deletes a field of the observation, it is
+given a fresh observation at the next tick): the world model, the scenario, payloads and disturbances
 stay out of its reach, as far as an in-process call can keep them (see
 ``sealed:`` controllers for a process boundary).
 """
