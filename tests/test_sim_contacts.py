@@ -10,6 +10,7 @@ standing on four feet, mid-trot with feet in the air, and lying on the trunk.
 
 from __future__ import annotations
 
+import copy
 import textwrap
 from pathlib import Path
 
@@ -60,8 +61,11 @@ def _scan(table, m, d):
     """Step ``d`` once through the scan (classify after mj_step1, forces after mj_step2); also the reference."""
     F = len(table._zeros) // 3
     mujoco.mj_step1(m, d)
-    snap = mujoco.MjData(m)
-    mujoco.mj_copyData(snap, m, d)
+    if hasattr(mujoco, "mj_copyData"):
+        snap = mujoco.MjData(m)
+        mujoco.mj_copyData(snap, m, d)
+    else:   # MuJoCo before 3.4 has no mj_copyData binding; copy.copy makes the same copy
+        snap = copy.copy(d)
     contact = np.zeros(F, dtype=bool)
     fell = table.classify(d, contact)
     mujoco.mj_step2(m, d)

@@ -4,7 +4,9 @@ A controller is given the nominal robot (robot-only model, no world) once in
 ``reset`` and then, every control tick, an :class:`Observation` and the current
 velocity command ``[vx, vy, yaw_rate]`` (body frame). It returns joint torques in
 manifest order. The runner preallocates the observation arrays and updates them
-in place, so a controller may keep references to them between ticks.
+in place, so a controller may keep references to them between ticks. A controller
+that replaces or deletes one of the observation's arrays (or its ``privileged``
+part) is given a fresh observation object at the next tick.
 """
 
 from __future__ import annotations

@@ -35,9 +35,19 @@ MuJoCo's warnings are captured while an episode runs (MuJoCo's own message
 text, instead of its default of printing and writing ``MUJOCO_LOG.TXT`` into
 the working folder); a fatal one ends the episode as ``error`` with that text.
 
+Per tick the runner's own work is kept small (see docs/explanation/speed.md): the
+state of the instant (qpos, qvel, the trunk's orientation, the foot sites, the body
+COMs, the applied torques) is one fancy-index copy from a raw view of MjData's memory
+into one row, the controller's observation one more (its arrays are views into one
+buffer), the foot contact forces are rebuilt after the episode from raw contact
+records logged per tick (:mod:`bench.sim.contacts`), and the trace's derived columns
+are filled vectorised after the loop; the raw views are checked against MuJoCo's
+bindings once (:mod:`bench.sim.rawmem`), with the bindings as the fallback.
+
 The controller gets only an :class:`~bench.controllers.base.Observation` and a
 command, its own copies refreshed every tick (what it does to them cannot change
-the recorded trace): the world model, the scenario, payloads and disturbances
+the recorded trace; if it replaces or deletes a field of the observation, it is
+given a fresh observation at the next tick): the world model, the scenario, payloads and disturbances
 stay out of its reach, as far as an in-process call can keep them (see
 ``sealed:`` controllers for a process boundary).
 """
@@ -54,7 +64,7 @@ from dataclasses import dataclass, field
 import mujoco
 import numpy as np
 
-from bench.controllers.base import Observation
+from bench.controllers.base import Observation, Privileged
 from bench.controllers.seeding import reset_kwargs
 from bench.faults import FaultContext
 from bench.gaits import GAIT_HINT_NAMES, gait_code
@@ -63,6 +73,7 @@ from bench.sim.interrupts import UserInterrupts, raised_reason
 from bench.sim.signals import SignalError, SignalRecorder
 from bench.sim.events import Event, compile_forces, compile_masses, fault_events
 from bench.sim.faults import compile_faults
+from bench.sim.rawmem import DataView
 from bench.sim.sensing import compile_sensing, sensing_info
 from bench.sim.trace import Trace
 from bench.world.payloads import PAYLOAD_CONTYPE, PAYLOAD_RGBA
@@ -446,13 +457,22 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     site_xpos, xipos = d.site_xpos, d.xipos
     warn_number = d.warning.number
     no_warnings = bytes(warn_number.nbytes)   # a bytes comparison is cheaper than a numpy reduction
-    # Per-tick copies: qpos, qvel and body COMs are copied whole; what the trace wants from them
-    # (joints, base, centre of mass) is taken out after the episode, vectorised.
-    R_qpos, R_quat, R_feet, R_contact = A["qpos"], A["base_quat"], A["foot_pos"], A["foot_contact"]
+    # Per-tick copies: qpos, qvel, the trunk's orientation, the foot sites and body COMs go whole into one
+    # row per tick (one fancy index on a raw view of MjData, see bench.sim.rawmem); what the trace wants from
+    # them (joints, base, centre of mass) is taken out after the episode, vectorised.
+    R_contact = A["foot_contact"]
     R_payload, R_torque, R_limit, R_ext = A["payload_mass"], A["joint_torque"], A["torque_limit"], A["ext_force"]
     R_force = A["foot_force"].reshape(n_ticks, -1)   # flat (3F,) rows, a view
-    R_qvel = np.zeros((n_ticks, m.nv))
-    R_xipos = np.zeros((n_ticks, m.nbody, 3))
+    nq, nv, nb = m.nq, m.nv, m.nbody
+    cols = np.cumsum([0, nq, nv, 4, 3 * F, 3 * nb, J])   # qpos | qvel | trunk quat | foot sites | body COMs | ctrl
+    R_row = np.zeros((n_ticks, int(cols[-1])))
+    R_qpos, R_qvel, R_quat = R_row[:, cols[0]:cols[1]], R_row[:, cols[1]:cols[2]], R_row[:, cols[2]:cols[3]]
+    R_feet = R_row[:, cols[3]:cols[4]].reshape(n_ticks, F, 3)
+    R_xipos = R_row[:, cols[4]:cols[5]].reshape(n_ticks, nb, 3)
+    R_ctrl = R_row[:, cols[5]:cols[6]]   # the applied torques as MjData's ctrl holds them
+    # Faults that change the limits (derating) switch on at a tick or act on the command: with none, the
+    # limits are the nominal ones throughout and are filled in after the episode.
+    record_limits = bool(faults.effects)
 
     # --- initial state -------------------------------------------------------------
     d.qpos[:] = world.initial_qpos
@@ -469,13 +489,35 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     # The runner's own contact flags (recorded); the controller gets an observation and a command of its
     # own, filled from MjData every tick: what it does to them (np.clip(command, ..., out=command),
     # swapping an array) cannot change what is recorded, and is overwritten at the next tick.
-    foot_contact = np.zeros(F, dtype=bool)
-    ctrl_obs, ctrl_command = Observation.zeros(J, F), np.zeros(3)
+    ctrl_command = np.zeros(3)
     # Extra sensors (scenario key sensing:); None without them, and then nothing of them runs per tick.
     sensing = getattr(scenario, "sensing", None)
     privileged = sensing is None or bool(sensing.privileged)
-    if not privileged:
-        ctrl_obs.privileged = None
+    # The controller's observation: its arrays are views into one buffer, filled by one fancy index of the
+    # raw MjData view per tick (or field by field through the bindings where the view does not check).
+    ctrl_obs, obs_buf, obs_parts = _buffered_observation(J, F, privileged)
+    v_quat, v_gyro, v_accel, v_jpos, v_jvel, v_fc, v_priv, v_bpos, v_bvel = obs_parts
+    view = DataView.build(d, ("qpos", "qvel", "sensordata", "xquat", "site_xpos", "xipos", "ctrl"))
+    if view is not None:
+        flat = view.flat
+        obs_idx = np.concatenate([view.index("sensordata", np.arange(iq, iq + 4)),
+                                  view.index("sensordata", np.arange(ig, ig + 3)),
+                                  view.index("sensordata", np.arange(ia, ia + 3)),
+                                  view.index("qpos", jq), view.index("qvel", jv)]
+                                 + ([view.index("qpos", np.arange(qa, qa + 3)),
+                                     view.index("qvel", np.arange(va, va + 3))] if privileged else []))
+        row_idx = np.concatenate([view.index("qpos"), view.index("qvel"),
+                                  view.index("xquat", np.arange(4 * trunk, 4 * trunk + 4)),
+                                  view.index("site_xpos", (3 * np.asarray(feet_sites)[:, None] + np.arange(3)).ravel()),
+                                  view.index("xipos"), view.index("ctrl", act)])
+        o_q, o_v = view.offsets["qpos"], view.offsets["qvel"]
+        # qpos and qvel side by side (as MuJoCo lays them out): one list for the finiteness check
+        state = flat[o_q:o_q + nq + nv] if o_v == o_q + nq else None
+        state_zeros = np.zeros(nq + nv)
+    else:
+        state = None
+    contacts.bind_raw(m, d)
+    contacts.start_log(m, R_force)
     sensors = compile_sensing(scenario, world, m, d, contacts, seed, float(scenario.control_rate))
     try:
         robot.sensing = sensing_info(sensing)
@@ -483,6 +525,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
         pass
     status, reason = "completed", None
     ctrl_ms = A["controller_ms"]
+    ctrl_s = [0.0] * n_ticks   # controller call times, s (a list item is cheaper to set than an array's)
 
     # reset() may take long (building a solver): only the episode deadline applies to it.
     watchdog.call_limit_s = math.inf
@@ -531,6 +574,11 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     # Module attributes the tick uses, bound once.
     perf_counter, mj_step1, mj_step2, mj_step = time.perf_counter, mujoco.mj_step1, mujoco.mj_step2, mujoco.mj_step
     more_substeps = range(substeps - 1)
+    shape_j = (J,)
+    cmd_list = list(cmd_rows)   # the rows as arrays of their own: no row view made per tick
+    # The fault plan's per-tick hooks as local flags, refreshed when faults switch on (the only time they change).
+    next_fault = faults.next_tick
+    fault_obs, fault_cmd, fault_app = bool(faults.observers), bool(faults.commanders), bool(faults.appliers)
     cpu0 = time.process_time()
     wall0 = time.perf_counter()
     step = 0
@@ -548,8 +596,10 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                     m.geom_contype[p.geom_id] = payload_geom_contype[i] if visible else 0
                     m.geom_rgba[p.geom_id, 3] = base_rgba_alpha[i] if visible else 0.0
                     payload_mass[i] = mass
-            if k == faults.next_tick:   # faults switching on (derated limits, a lock's constraint...)
+            if k == next_fault:   # faults switching on (derated limits, a lock's constraint...)
                 faults.switch(k)
+                next_fault = faults.next_tick
+                fault_obs, fault_cmd, fault_app = bool(faults.observers), bool(faults.commanders), bool(faults.appliers)
                 np.negative(limit_now, out=neg_limit)
 
             if has_forces:
@@ -557,39 +607,41 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
             mj_step1(m, d)
 
             # Contacts of this instant, then the controller's observation: sensors, joints, contacts.
-            foot_contact[:] = False
-            fell_contact = contacts.classify(d, foot_contact)
-            try:
-                ctrl_obs.t = t
-                ctrl_obs.imu_quat[:] = s_quat
-                ctrl_obs.imu_gyro[:] = s_gyro
-                ctrl_obs.imu_accel[:] = s_accel
-                ctrl_obs.joint_pos[:] = qpos[jq_s]
-                ctrl_obs.joint_vel[:] = qvel[jv_s]
-                ctrl_obs.foot_contact[:] = foot_contact
+            fc = R_contact[k]   # zeros as allocated: classify marks the feet touching
+            fell_contact = contacts.classify(d, fc)
+            o = ctrl_obs
+            try:   # the controller may have replaced or deleted a field: then it gets a fresh observation
+                intact = (o.imu_quat is v_quat and o.imu_gyro is v_gyro and o.imu_accel is v_accel
+                          and o.joint_pos is v_jpos and o.joint_vel is v_jvel and o.foot_contact is v_fc
+                          and o.privileged is v_priv
+                          and (v_priv is None or (v_priv.base_pos is v_bpos and v_priv.base_linvel is v_bvel)))
+            except AttributeError:
+                intact = False
+            if not intact:
+                ctrl_obs, obs_buf, obs_parts = _buffered_observation(J, F, privileged)
+                v_quat, v_gyro, v_accel, v_jpos, v_jvel, v_fc, v_priv, v_bpos, v_bvel = obs_parts
+            if view is not None:
+                obs_buf[:] = flat[obs_idx]
+            else:
+                v_quat[:] = s_quat
+                v_gyro[:] = s_gyro
+                v_accel[:] = s_accel
+                v_jpos[:] = qpos[jq_s]
+                v_jvel[:] = qvel[jv_s]
                 if privileged:
-                    ctrl_obs.privileged.base_pos[:] = q_base
-                    ctrl_obs.privileged.base_linvel[:] = v_base
-                if has_hints:
-                    ctrl_obs.gait_hint = hint_of[hint_rows[k]]
-            except Exception:  # noqa: BLE001 - the controller replaced an array or the privileged part
-                ctrl_obs = _fresh_observation(J, F, t, s_quat, s_gyro, s_accel, qpos[jq_s], qvel[jv_s],
-                                              foot_contact, q_base if privileged else None, v_base,
-                                              hint_of[hint_rows[k]])
+                    v_bpos[:] = q_base
+                    v_bvel[:] = v_base
+            v_fc[:] = fc
+            ctrl_obs.t = t
+            if has_hints:
+                ctrl_obs.gait_hint = hint_of[hint_rows[k]]
             if sensors is not None:
                 sensors.observe(k, ctrl_obs)
-            # The true state of this instant (before any sensor fault).
-            R_qpos[k] = qpos
-            R_qvel[k] = qvel
-            R_quat[k] = xquat_trunk
-            R_feet[k] = site_xpos[feet_s]
-            R_xipos[k] = xipos
-            R_contact[k] = foot_contact
             if P:
                 R_payload[k] = payload_mass
-            if faults.observers:   # sensor faults act on what the controller sees, never on the record
+            if fault_obs:   # sensor faults act on what the controller sees, never on the record
                 faults.observe(ctrl_obs)
-            ctrl_command[:] = cmd_rows[k]
+            ctrl_command[:] = cmd_list[k]
 
             # The controller.
             c0 = watchdog.call_start = perf_counter()
@@ -598,7 +650,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 watchdog.call_start = 0.0
             except _ControllerHung as hung:
                 watchdog.call_start = 0.0
-                ctrl_ms[k] = (time.perf_counter() - c0) * 1e3
+                ctrl_s[k] = time.perf_counter() - c0
                 status, reason = "timeout", _timeout_reason(hung, limits, f"at tick {k} (t={t:.3f} s)")
                 break
             except BaseException as exc:  # noqa: BLE001 - SystemExit, KeyboardInterrupt... of the controller
@@ -609,7 +661,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 reason = raised_reason(exc, f"at tick {k} (t={t:.3f} s)")
                 break
             c1 = perf_counter()
-            ctrl_ms[k] = (c1 - c0) * 1e3
+            ctrl_s[k] = c1 - c0
             if c1 - watchdog.checked_at > watchdog.period_s and watchdog.active:
                 watchdog.check(c1, f"tick {k} (t={t:.3f} s)")
             if c1 - c0 > tick_limit_s:
@@ -630,7 +682,7 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                     raise
                 status, reason = "error", raised_reason(exc, f"converting its torques at tick {k} (t={t:.3f} s)")
                 break
-            if tau.shape != (J,):
+            if tau.shape != shape_j:
                 what = "None" if tau.shape == () and math.isnan(float(tau)) else f"torques of shape {tau.shape}"
                 status, reason = "error", (f"controller returned {what} at tick {k} (t={t:.3f} s); "
                                            f"expected {J} torques, shape ({J},)")
@@ -654,26 +706,39 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
 
             # Faults on the command (latency), the limits, faults on the applied torque (limp joints),
             # then hold until the next tick.
-            if faults.commanders:
+            if fault_cmd:
                 tau = faults.command(k, tau)
                 np.negative(limit_now, out=neg_limit)
             applied = applied_buf if ctrl_act is None else ctrl_act
             np.minimum(tau, limit_now, out=applied)
             np.maximum(applied, neg_limit, out=applied)
-            if faults.appliers:
+            if fault_app:
                 faults.apply(applied)
             if ctrl_act is None:
                 d.ctrl[act_s] = applied
-            # Record the row of this instant (contact forces come from this step's solve, below).
-            R_torque[k] = applied
-            R_limit[k] = limit_now
+            # Record the row of this instant: the true state (before any sensor fault; nothing has moved since
+            # mj_step1) and the torques in ctrl (contact forces come from this step's solve, below).
+            if view is not None:
+                R_row[k] = flat[row_idx]
+            else:
+                R_qpos[k] = qpos
+                R_qvel[k] = qvel
+                R_quat[k] = xquat_trunk
+                R_feet[k] = site_xpos[feet_s]
+                R_xipos[k] = xipos
+                R_ctrl[k] = applied
+            if record_limits:
+                R_limit[k] = limit_now
 
             mj_step2(m, d)
             step += 1
 
             if has_forces:
                 R_ext[k] = ext_now
-            contacts.forces(m, d, R_force[k])
+            if contacts.logging:   # raw records now, the forces after the episode (bit for bit the same)
+                contacts.log(d, k)
+            else:
+                contacts.forces(m, d, R_force[k])
 
             for _ in more_substeps:
                 if has_forces:
@@ -694,7 +759,10 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                 physics_fault = True
                 k += 1
                 break
-            if not math.isfinite(sum(qpos.tolist()) + sum(qvel.tolist())):  # any NaN or infinity makes it so
+            # x * 0 is NaN for a NaN or an infinity and 0 otherwise: the dot product with zeros is finite
+            # exactly when every element is
+            if not math.isfinite(state.dot(state_zeros) if state is not None
+                                 else sum(qpos.tolist()) + sum(qvel.tolist())):
                 status, reason = "error", (f"non-finite state (NaN or infinity in qpos/qvel) at tick {k} "
                                            f"(t={t:.3f}-{step * dt:.3f} s)")
                 physics_fault = True
@@ -717,6 +785,14 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
     cpu = time.process_time() - cpu0
 
     n = k
+    contacts.flush()
+    if not record_limits:
+        R_limit[:n] = limit_now
+    A["qpos"][:n] = R_qpos[:n]
+    A["base_quat"][:n] = R_quat[:n]
+    A["foot_pos"][:n] = R_feet[:n]
+    R_torque[:n] = R_ctrl[:n]
+    ctrl_ms[:n] = np.array(ctrl_s[:n]) * 1e3
     trace.truncate(n)
     if signals is not None:
         signals.into(trace.arrays, n)
@@ -762,24 +838,20 @@ def _run_episode(world, scenario, controller, robot, seed, limits: EpisodeLimits
                          events=events, controller_stats=stats, cpu_time_s=cpu)
 
 
-def _fresh_observation(J: int, F: int, t: float, quat, gyro, accel, joint_pos, joint_vel, foot_contact, base_pos,
-                       base_linvel, gait_hint: str | None = None) -> Observation:
-    """A new controller observation (the controller broke its own); filled from this tick's values."""
-    o = Observation.zeros(J, F)
-    o.t = t
-    o.imu_quat[:] = quat
-    o.imu_gyro[:] = gyro
-    o.imu_accel[:] = accel
-    o.joint_pos[:] = joint_pos
-    o.joint_vel[:] = joint_vel
-    o.foot_contact[:] = foot_contact
-    o.gait_hint = gait_hint
-    if base_pos is None:   # privileged: false
-        o.privileged = None
-        return o
-    o.privileged.base_pos[:] = base_pos
-    o.privileged.base_linvel[:] = base_linvel
-    return o
+def _buffered_observation(J: int, F: int, privileged: bool):
+    """A controller observation whose float arrays are views into one buffer, the buffer, and the parts
+    (imu_quat, imu_gyro, imu_accel, joint_pos, joint_vel, foot_contact, privileged, base_pos, base_linvel;
+    the last three None when ``privileged`` is False). Buffer layout: quat 4, gyro 3, accel 3, joint
+    positions J, joint velocities J, then (privileged) base position 3 and base velocity 3."""
+    buf = np.zeros(10 + 2 * J + (6 if privileged else 0))
+    buf[0] = 1.0
+    parts = [buf[0:4], buf[4:7], buf[7:10], buf[10:10 + J], buf[10 + J:10 + 2 * J], np.zeros(F, dtype=bool)]
+    priv = None
+    if privileged:
+        priv = Privileged(base_pos=buf[10 + 2 * J:13 + 2 * J], base_linvel=buf[13 + 2 * J:16 + 2 * J])
+    o = Observation(imu_quat=parts[0], imu_gyro=parts[1], imu_accel=parts[2], joint_pos=parts[3],
+                    joint_vel=parts[4], foot_contact=parts[5], privileged=priv)
+    return o, buf, (*parts, priv, priv.base_pos if priv else None, priv.base_linvel if priv else None)
 
 
 def _set_payload_mass(m: mujoco.MjModel, p, mass: float) -> None:
