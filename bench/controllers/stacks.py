@@ -43,7 +43,8 @@ foot rises before it moves (``scan_swing_hold``); the desired trunk attitude fol
 roll and pitch of the plane fitted to the feet's last contact points (clipped to
 ``scan_max_tilt_deg``; the height may be raised by ``scan_height_offset_m``, 0 by default, and
 is raised by up to ``scan_descent_height_m`` while that plane pitches nose down, i.e. on a
-descent: from ``scan_descent_tilt_deg`` of desired pitch, in full at the tilt clip); each stance foot's friction pyramid is turned to the scan's local normal under it. The scan
+descent: from ``scan_descent_tilt_deg`` of desired pitch, in full at the tilt clip); each
+stance foot's friction pyramid is turned to the scan's local normal under it. The scan
 is placed with the trunk's current position and heading (exact for a scan without latency).
 The scan reads world heights while the trunk state may be an estimate whose height drifts, so
 the scan is shifted into the estimate's vertical frame: the offset is the mean, over stance
@@ -133,10 +134,11 @@ class ForceQPController:
         stance folds the knees less far back, away from the edge of the step behind when descending.
     scan_descent_height_m: added to the desired trunk height while the desired pitch taken from the
         fitted ground plane is nose down (a descent), ramped from 0 at ``scan_descent_tilt_deg`` to
-        the full value at ``scan_max_tilt_deg`` (m). Going down stairs the legs reach down a riser
-        ahead and the shanks pass over the nose of the tread behind; a taller trunk keeps the
-        shanks off those noses and the front feet within reach of the lower tread. Up a flight
-        and on the level it adds nothing.
+        the full value at ``scan_max_tilt_deg`` (m). Going down stairs at the nominal height a
+        leg stepping down a riser often ends its swing with the shank resting on the nose of the
+        tread it left and the foot short of the lower tread, and the trunk falls onto that leg;
+        standing taller on the way down keeps the shanks off the noses. Up a flight and on the
+        level it adds nothing.
     scan_descent_tilt_deg: desired nose-down pitch where ``scan_descent_height_m`` starts (deg).
     privileged: read the true trunk position and velocity from ``obs.privileged``
         instead of estimating them (a scenario or run without privileged state then
@@ -184,7 +186,7 @@ class ForceQPController:
         scan_max_tilt_deg: float = 14.0,
         scan_tilt_tau_s: float = 0.4,
         scan_height_offset_m: float = 0.0,
-        scan_descent_height_m: float = 0.06,
+        scan_descent_height_m: float = 0.05,
         scan_descent_tilt_deg: float = 5.0,
         scan_align_tau_s: float = 0.1,
         gait_tuning: dict | None = None,
