@@ -285,7 +285,8 @@ def test_trunk_stands_taller_only_while_the_stance_plane_pitches_nose_down(tmp_p
         lift = np.array([r[0] for r in ctrl.rows])
         pitch = np.array([r[1] for r in ctrl.rows])
         lift_m = ctrl.params["scan_descent_height_m"]
-        assert lift_m > 0.02 and ctrl.params["scan_descent_tilt_deg"] == 5.0 and ctrl.params["scan_max_tilt_deg"] == 14.0
+        assert lift_m > 0.02
+        assert ctrl.params["scan_descent_tilt_deg"] == 5.0 and ctrl.params["scan_max_tilt_deg"] == 14.0
         want = np.array([descent_height(p, lift_m, start, full) for p in pitch])
         assert np.allclose(lift, want, atol=1e-9)
         if descending:
