@@ -179,7 +179,7 @@ criteria:
 """
 
 
-def _episode(tmp_path, sensing, duration=3.2, controller=None):
+def _episode(tmp_path, sensing, duration=3.2, controller=None, text=None):
     from bench.robot.model import NominalRobot
     from bench.scenario import load_scenarios
     from bench.sim.episode import run_episode
@@ -187,7 +187,7 @@ def _episode(tmp_path, sensing, duration=3.2, controller=None):
     from bench.controllers.stacks import ForceQPL1Controller
 
     path = tmp_path / "s.yaml"
-    path.write_text(textwrap.dedent(ONE_STEP.format(duration=duration, sensing=sensing)))
+    path.write_text(textwrap.dedent((text or ONE_STEP).format(duration=duration, sensing=sensing)))
     sc = load_scenarios([str(path)])[0]
     world = build_world(sc)
     ep = run_episode(world, sc, controller or ForceQPL1Controller(), NominalRobot(world.robot))
@@ -228,3 +228,82 @@ def test_scan_is_shifted_into_the_trunk_states_vertical_frame(tmp_path):
     assert abs((biased._scan_off - plain._scan_off) - 0.05) < 0.003, (biased._scan_off, plain._scan_off)
     # and it still climbs the step in the shifted frame
     assert np.all(ep.trace.arrays["foot_pos"][-1][:, 2] > 0.08)
+
+
+# ------------------------------------------------------------------ taller on a descent
+
+def test_descent_height_ramp_endpoints():
+    from bench.controllers.stacks import descent_height
+
+    start, full = math.radians(5.0), math.radians(14.0)
+    assert descent_height(0.0, 0.06, start, full) == 0.0                      # level
+    assert descent_height(math.radians(-14.0), 0.06, start, full) == 0.0      # nose up (a climb)
+    assert descent_height(math.radians(4.9), 0.06, start, full) == 0.0
+    assert descent_height(start, 0.06, start, full) == 0.0                    # ramp starts at 0 ...
+    assert descent_height(full, 0.06, start, full) == pytest.approx(0.06)     # ... and is full at the clip
+    assert descent_height(math.radians(9.5), 0.06, start, full) == pytest.approx(0.03)
+    assert descent_height(math.radians(20.0), 0.06, start, full) == pytest.approx(0.06)
+    assert descent_height(math.radians(10.0), 0.0, start, full) == 0.0        # switched off
+    # a start at or past the clip makes it a step at the start
+    assert descent_height(math.radians(14.0), 0.06, full, full) == 0.0
+    assert descent_height(math.radians(14.1), 0.06, full, full) == pytest.approx(0.06)
+    assert descent_height(math.radians(1.0), 0.06, 0.0, full) > 0.0           # start 0: any nose-down pitch
+
+
+def _recording(**params):
+    """A force-qp-l1 (true state) recording, per tick, the commanded height above the ground plane's
+    nominal and the low-passed desired pitch."""
+    from bench.controllers.stacks import ForceQPL1Controller
+
+    class Recording(ForceQPL1Controller):
+        def step(self, obs, command):
+            tau = super().step(obs, command)
+            pitch = self._tilt[0] if self.scan_map is not None else None
+            self.rows.append((float(self.p_des[2] - self.ground_z - self.height_nominal), pitch))
+            return tau
+
+    ctrl = Recording(privileged=True, **params)
+    ctrl.rows = []
+    return ctrl
+
+
+STEP_DOWN = ONE_STEP.replace("steps: 1, rise: 0.10, run: 0.30, direction: up",
+                             "steps: 1, rise: 0.10, run: 0.30, direction: down")
+
+
+def test_trunk_stands_taller_only_while_the_stance_plane_pitches_nose_down(tmp_path):
+    from bench.controllers.stacks import descent_height
+
+    sensing = "sensing:\n  height_scan: {size: [1.1, 0.5], resolution: 0.02, offset: [0.1, 0.0]}"
+    start, full = math.radians(5.0), math.radians(14.0)
+    # down one 10 cm step with the scan: the fitted plane pitches nose down and the trunk is raised by the
+    # ramp of that pitch, tick by tick; up the same step it is never raised
+    for text, descending in ((STEP_DOWN, True), (ONE_STEP, False)):
+        ctrl = _recording()
+        ep = _episode(tmp_path, sensing, duration=3.5, controller=ctrl, text=text)
+        assert ep.status == "completed", ep.reason
+        lift = np.array([r[0] for r in ctrl.rows])
+        pitch = np.array([r[1] for r in ctrl.rows])
+        lift_m = ctrl.params["scan_descent_height_m"]
+        assert lift_m > 0.02
+        assert ctrl.params["scan_descent_tilt_deg"] == 5.0 and ctrl.params["scan_max_tilt_deg"] == 14.0
+        want = np.array([descent_height(p, lift_m, start, full) for p in pitch])
+        assert np.allclose(lift, want, atol=1e-9)
+        if descending:
+            assert pitch.max() > math.radians(8.0)     # the step down tilts the plane nose down ...
+            assert lift.max() > 0.02                   # ... and the trunk stands taller
+        else:
+            assert pitch.min() < -math.radians(8.0)    # nose up on the climb
+            assert np.abs(lift).max() < 1e-9            # round-off of the subtraction only
+
+
+def test_descent_height_changes_nothing_without_a_scan(tmp_path):
+    # no scan, down the step: the same episode with and without the descent height, tick for tick
+    runs = []
+    for dz in (0.06, 0.0):
+        ctrl = _recording(scan_descent_height_m=dz)
+        ep = _episode(tmp_path, "", duration=3.5, controller=ctrl, text=STEP_DOWN)
+        runs.append((ep.trace.arrays["qpos"], [r[0] for r in ctrl.rows]))
+        assert all(r[1] is None for r in ctrl.rows)
+    assert np.array_equal(runs[0][0], runs[1][0])
+    assert runs[0][1] == runs[1][1]

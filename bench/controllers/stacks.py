@@ -41,8 +41,10 @@ nothing else: footholds move to the nearest safe cell of the scan and land at th
 height; the swing apex clears the highest scan point between lift-off and touch-down and the
 foot rises before it moves (``scan_swing_hold``); the desired trunk attitude follows the
 roll and pitch of the plane fitted to the feet's last contact points (clipped to
-``scan_max_tilt_deg``; the height may be raised by ``scan_height_offset_m``, 0 by default);
-each stance foot's friction pyramid is turned to the scan's local normal under it. The scan
+``scan_max_tilt_deg``; the height may be raised by ``scan_height_offset_m``, 0 by default, and
+is raised by up to ``scan_descent_height_m`` while that plane pitches nose down, i.e. on a
+descent: from ``scan_descent_tilt_deg`` of desired pitch, in full at the tilt clip); each
+stance foot's friction pyramid is turned to the scan's local normal under it. The scan
 is placed with the trunk's current position and heading (exact for a scan without latency).
 The scan reads world heights while the trunk state may be an estimate whose height drifts, so
 the scan is shifted into the estimate's vertical frame: the offset is the mean, over stance
@@ -89,6 +91,19 @@ def _rot_x(a: float) -> np.ndarray:
     return np.array([[1.0, 0.0, 0.0], [0.0, c, -s], [0.0, s, c]])
 
 
+def descent_height(pitch: float, lift_m: float, start: float, full: float) -> float:
+    """Extra trunk height for a nose-down desired ``pitch`` (rad, positive nose down).
+
+    0 up to ``start``, ``lift_m`` from ``full`` on, linear in between (a step at ``start``
+    when ``full <= start``); 0 for a level or nose-up pitch whatever ``start``.
+    """
+    if pitch <= 0.0 or pitch <= start:
+        return 0.0
+    if pitch >= full:
+        return lift_m
+    return lift_m * (pitch - start) / (full - start)
+
+
 class ForceQPController:
     """Trotting controller: SRB force QP for stance, Cartesian PD for swing (no adaptation).
 
@@ -117,6 +132,14 @@ class ForceQPController:
         estimate's frame (s; see above).
     scan_height_offset_m: added to the desired trunk height while a scan is present (m); a taller
         stance folds the knees less far back, away from the edge of the step behind when descending.
+    scan_descent_height_m: added to the desired trunk height while the desired pitch taken from the
+        fitted ground plane is nose down (a descent), ramped from 0 at ``scan_descent_tilt_deg`` to
+        the full value at ``scan_max_tilt_deg`` (m). Going down stairs at the nominal height a
+        leg stepping down a riser often ends its swing with the shank resting on the nose of the
+        tread it left and the foot short of the lower tread, and the trunk falls onto that leg;
+        standing taller on the way down keeps the shanks off the noses. Up a flight and on the
+        level it adds nothing.
+    scan_descent_tilt_deg: desired nose-down pitch where ``scan_descent_height_m`` starts (deg).
     privileged: read the true trunk position and velocity from ``obs.privileged``
         instead of estimating them (a scenario or run without privileged state then
         stops the episode with an error saying so).
@@ -163,6 +186,8 @@ class ForceQPController:
         scan_max_tilt_deg: float = 14.0,
         scan_tilt_tau_s: float = 0.4,
         scan_height_offset_m: float = 0.0,
+        scan_descent_height_m: float = 0.05,
+        scan_descent_tilt_deg: float = 5.0,
         scan_align_tau_s: float = 0.1,
         gait_tuning: dict | None = None,
         privileged: bool = False,
@@ -338,8 +363,6 @@ class ForceQPController:
         self.v_des[:] = v_des
         self.w_des[2] = c[2]
         if smap is not None:
-            pd[2] += self._scan_dz
-            self.p_des[2] = pd[2]
             # trunk attitude along the fitted ground plane: pitch from the slope along the heading,
             # roll from the slope across it (nose up on an ascending slope is a negative pitch about y),
             # low-passed because on stairs the plane through the feet jumps by a riser at each landing
@@ -347,6 +370,9 @@ class ForceQPController:
             tilt = self._tilt
             tilt[0] += a * (max(-tmax, min(tmax, -math.atan(cyaw * gx + syaw * gy))) - tilt[0])
             tilt[1] += a * (max(-tmax, min(tmax, math.atan(-syaw * gx + cyaw * gy))) - tilt[1])
+            # taller on a descent (nose-down plane), ramped in with the low-passed pitch
+            pd[2] += self._scan_dz + descent_height(tilt[0], self._descent_dz, self._descent_from, tmax)
+            self.p_des[2] = pd[2]
             so3.rot_z(yd, out=self.rot_des)
             self.rot_des[:] = self.rot_des @ _rot_y(tilt[0]) @ _rot_x(tilt[1])
 
@@ -422,6 +448,8 @@ class ForceQPController:
             self._tilt_alpha = 1.0 - math.exp(-self.dt / max(p["scan_tilt_tau_s"], 1e-6))
             self._tilt = [0.0, 0.0]   # desired pitch, roll (rad)
             self._scan_dz = float(p["scan_height_offset_m"])
+            self._descent_dz = float(p["scan_descent_height_m"])
+            self._descent_from = math.radians(p["scan_descent_tilt_deg"])
             self._align_alpha = 1.0 - math.exp(-self.dt / max(p["scan_align_tau_s"], 1e-6))
             self._scan_off = None          # estimate frame minus world, m (None: not yet seen a stance foot)
             self._scan_buf = np.empty(np.shape(scan))
