@@ -104,6 +104,38 @@ def descent_height(pitch: float, lift_m: float, start: float, full: float) -> fl
     return lift_m * (pitch - start) / (full - start)
 
 
+def scan_slope_weights(x) -> np.ndarray:
+    """Weights ``w`` with ``w @ h`` = least-squares slope dh/dx of heights ``h`` at abscissae ``x``."""
+    x = np.asarray(x, dtype=float).ravel()
+    d = x - x.mean()
+    ss = float(d @ d)
+    return d / ss if ss > 0.0 else np.zeros_like(d)
+
+
+def scan_slope(heights, x, weights=None) -> float:
+    """Least-squares slope dh/dx of the scan ``heights`` over the points' heading offsets ``x``.
+
+    Over a scan longer than a few treads of a staircase this is about rise/run whatever the
+    phase of the treads under it; non-finite heights are left out (0 with fewer than 2 points left).
+    """
+    h = np.asarray(heights, dtype=float).ravel()
+    if weights is not None and np.isfinite(h).all():
+        return float(weights @ h)
+    x = np.asarray(x, dtype=float).ravel()
+    ok = np.isfinite(h)
+    if ok.sum() < 2:
+        return 0.0
+    return float(scan_slope_weights(x[ok]) @ h[ok])
+
+
+def bound_pitch(pitch: float, scan_pitch: float, factor: float) -> float:
+    """``pitch`` kept between 0 and ``factor * scan_pitch`` (rad; a factor of inf: unchanged)."""
+    if math.isinf(factor):
+        return pitch
+    b = factor * scan_pitch
+    return max(min(0.0, b), min(max(0.0, b), pitch))
+
+
 class ForceQPController:
     """Trotting controller: SRB force QP for stance, Cartesian PD for swing (no adaptation).
 
@@ -128,6 +160,14 @@ class ForceQPController:
     scan_swing_hold: share of the swing at each end without horizontal motion (``swing.py``).
     scan_max_tilt_deg: clip on the desired roll and pitch taken from the fitted ground plane.
     scan_tilt_tau_s: time constant of the low-pass on that desired roll and pitch (s).
+    scan_slope_factor: the desired pitch from the fitted plane (before the low-pass) is kept
+        between 0 and this factor times the pitch of the terrain's mean slope along the heading
+        (least-squares slope of all scan heights against their heading offsets: over a scan
+        a few treads long, about rise/run of a flight). The plane through the feet's last
+        contacts tilts more than the flight while the front feet are a tread higher than the
+        rear (a riser short of a whole flight between them), and the trunk then pitched past the
+        flight's slope on a shallow flight; below 1 it leaves room for the tracking overshoot.
+        ``.inf``: no bound.
     scan_align_tau_s: time constant of the vertical alignment of the scan with the trunk-state
         estimate's frame (s; see above).
     scan_height_offset_m: added to the desired trunk height while a scan is present (m); a taller
@@ -185,6 +225,7 @@ class ForceQPController:
         scan_swing_hold: float = 0.15,
         scan_max_tilt_deg: float = 14.0,
         scan_tilt_tau_s: float = 0.4,
+        scan_slope_factor: float = 0.8,
         scan_height_offset_m: float = 0.0,
         scan_descent_height_m: float = 0.05,
         scan_descent_tilt_deg: float = 5.0,
@@ -368,7 +409,10 @@ class ForceQPController:
             # low-passed because on stairs the plane through the feet jumps by a riser at each landing
             tmax, a = self._max_tilt, self._tilt_alpha
             tilt = self._tilt
-            tilt[0] += a * (max(-tmax, min(tmax, -math.atan(cyaw * gx + syaw * gy))) - tilt[0])
+            # pitch target bounded by the scan's mean slope along the heading (about rise/run on a flight)
+            sp = -math.atan(scan_slope(smap.heights, self._scan_x, self._scan_w))
+            tp = bound_pitch(max(-tmax, min(tmax, -math.atan(cyaw * gx + syaw * gy))), sp, self._slope_k)
+            tilt[0] += a * (tp - tilt[0])
             tilt[1] += a * (max(-tmax, min(tmax, math.atan(-syaw * gx + cyaw * gy))) - tilt[1])
             # taller on a descent (nose-down plane), ramped in with the low-passed pitch
             pd[2] += self._scan_dz + descent_height(tilt[0], self._descent_dz, self._descent_from, tmax)
@@ -447,6 +491,9 @@ class ForceQPController:
             self._max_tilt = math.radians(p["scan_max_tilt_deg"])
             self._tilt_alpha = 1.0 - math.exp(-self.dt / max(p["scan_tilt_tau_s"], 1e-6))
             self._tilt = [0.0, 0.0]   # desired pitch, roll (rad)
+            self._slope_k = float(p["scan_slope_factor"])
+            self._scan_x = np.asarray(xy, dtype=float)[..., 0].ravel()   # heading offsets of the scan points
+            self._scan_w = scan_slope_weights(self._scan_x)
             self._scan_dz = float(p["scan_height_offset_m"])
             self._descent_dz = float(p["scan_descent_height_m"])
             self._descent_from = math.radians(p["scan_descent_tilt_deg"])
