@@ -250,6 +250,41 @@ def test_descent_height_ramp_endpoints():
     assert descent_height(math.radians(1.0), 0.06, 0.0, full) > 0.0           # start 0: any nose-down pitch
 
 
+@pytest.mark.parametrize("rise,run", [(0.08, 0.35), (0.10, 0.30)])
+def test_scan_slope_of_a_staircase_is_about_rise_over_run_at_every_phase(rise, run):
+    from bench.controllers.stacks import scan_slope, scan_slope_weights
+
+    # the bundled scan's grid along the heading (1.1 m, 2 cm, 10 cm ahead), 26 rows across
+    x = np.tile(np.arange(-0.45, 0.65 + 1e-9, 0.02)[:, None], (1, 26))
+    w = scan_slope_weights(x)
+    for phase in np.arange(0.0, run, 0.01):
+        h = np.floor((x + phase) / run) * rise
+        s = scan_slope(h, x, w)
+        assert 0.9 * rise / run < s < 1.1 * rise / run
+        assert s == pytest.approx(np.polyfit(x.ravel(), h.ravel(), 1)[0], abs=1e-12)
+        assert scan_slope(-h, x, w) == pytest.approx(-s)          # the flight down
+        # dropouts are left out: the slope of the points left
+        hn = h.copy()
+        hn[:5] = np.nan
+        assert scan_slope(hn, x, w) == pytest.approx(np.polyfit(x[5:].ravel(), h[5:].ravel(), 1)[0], abs=1e-12)
+    assert scan_slope(np.full(x.shape, np.nan), x, w) == 0.0
+    assert scan_slope(0.3 + 0.0 * x, x, w) == pytest.approx(0.0, abs=1e-12)   # level, at any height
+
+
+def test_bound_pitch_keeps_the_desired_pitch_between_level_and_the_scaled_slope():
+    from bench.controllers.stacks import bound_pitch
+
+    r = math.radians
+    assert bound_pitch(r(14.0), r(12.9), 0.8) == pytest.approx(r(0.8 * 12.9))    # down a flight: clipped
+    assert bound_pitch(r(-14.0), r(-12.9), 0.8) == pytest.approx(r(-0.8 * 12.9))  # up a flight
+    assert bound_pitch(r(6.0), r(12.9), 0.8) == r(6.0)          # inside the bound: unchanged
+    assert bound_pitch(r(-6.0), r(-12.9), 0.8) == r(-6.0)
+    assert bound_pitch(r(-10.0), r(8.0), 0.8) == 0.0             # plane nose up, terrain ahead down: level
+    assert bound_pitch(r(10.0), 0.0, 0.8) == 0.0                 # level terrain: level trunk
+    assert bound_pitch(r(10.0), r(-3.0), math.inf) == r(10.0)    # inf: no bound
+    assert bound_pitch(r(-10.0), r(3.0), math.inf) == r(-10.0)
+
+
 def _recording(**params):
     """A force-qp-l1 (true state) recording, per tick, the commanded height above the ground plane's
     nominal and the low-passed desired pitch."""
@@ -278,8 +313,10 @@ def test_trunk_stands_taller_only_while_the_stance_plane_pitches_nose_down(tmp_p
     start, full = math.radians(5.0), math.radians(14.0)
     # down one 10 cm step with the scan: the fitted plane pitches nose down and the trunk is raised by the
     # ramp of that pitch, tick by tick; up the same step it is never raised
+    # (without the bound on the scan's mean slope: a single step is no flight, and over the 1.1 m scan
+    # its mean slope is about 1.5 x 0.10 / 1.1 m, 7.8 deg, times scan_slope_factor)
     for text, descending in ((STEP_DOWN, True), (ONE_STEP, False)):
-        ctrl = _recording()
+        ctrl = _recording(scan_slope_factor=math.inf)
         ep = _episode(tmp_path, sensing, duration=3.5, controller=ctrl, text=text)
         assert ep.status == "completed", ep.reason
         lift = np.array([r[0] for r in ctrl.rows])
