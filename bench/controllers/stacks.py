@@ -41,7 +41,8 @@ nothing else: footholds move to the nearest safe cell of the scan and land at th
 height; the swing apex clears the highest scan point between lift-off and touch-down and the
 foot rises before it moves (``scan_swing_hold``); the desired trunk attitude follows the
 roll and pitch of the plane fitted to the feet's last contact points (clipped to
-``scan_max_tilt_deg``; the height may be raised by ``scan_height_offset_m``, 0 by default, and
+``scan_max_tilt_deg``, the pitch also kept between level and ``scan_slope_factor`` times the
+scan's mean slope along the heading; the height may be raised by ``scan_height_offset_m``, 0 by default, and
 is raised by up to ``scan_descent_height_m`` while that plane pitches nose down, i.e. on a
 descent: from ``scan_descent_tilt_deg`` of desired pitch, in full at the tilt clip); each
 stance foot's friction pyramid is turned to the scan's local normal under it. The scan
