@@ -344,3 +344,66 @@ def test_descent_height_changes_nothing_without_a_scan(tmp_path):
         assert all(r[1] is None for r in ctrl.rows)
     assert np.array_equal(runs[0][0], runs[1][0])
     assert runs[0][1] == runs[1][1]
+
+
+# ------------------------------------------------------------------ scan gains, L1 applied input
+
+SCAN = "sensing:\n  height_scan: {size: [1.1, 0.5], resolution: 0.02, offset: [0.1, 0.0]}"
+
+
+def test_scan_attitude_gains_and_the_l1_reference_model_follow_them(tmp_path):
+    from bench.controllers.stacks import ForceQPL1Controller
+
+    blind, scan = ForceQPL1Controller(privileged=True), ForceQPL1Controller(privileged=True)
+    _episode(tmp_path, "", duration=0.5, controller=blind)
+    _episode(tmp_path, SCAN, duration=0.5, controller=scan)
+    p = scan.params
+    np.testing.assert_array_equal(blind.wrench.kp_rot, p["kp_rot"])
+    np.testing.assert_array_equal(scan.wrench.kp_rot, p["scan_kp_rot"])
+    np.testing.assert_array_equal(scan.wrench.kd_rot, p["scan_kd_rot"])
+    assert scan.wrench._kp[3:6] == list(p["scan_kp_rot"]) and scan.wrench._kd[3:6] == list(p["scan_kd_rot"])
+    for ctrl in (blind, scan):     # the predictor's model is the closed loop of the gains in use
+        kp, kd = ctrl.wrench.kp, ctrl.wrench.kd
+        np.testing.assert_array_equal(ctrl.l1.am[6:12, 0:6], -np.diag(kp))
+        np.testing.assert_array_equal(ctrl.l1.am[6:12, 6:12], -np.diag(kd))
+    # the next episode starts from the plain gains again
+    scan.reset(scan.robot, scan.dt)
+    np.testing.assert_array_equal(scan.wrench.kp_rot, p["kp_rot"])
+
+
+def test_l1_applied_input_is_the_wrench_shortfall_and_only_on_a_scan(tmp_path):
+    """The shortfall handed to the predictor, against a plain recomputation: the stance forces'
+    net force and moment about the COM minus the desired wrench, over the nominal mass, and the
+    moment's part turned into the body frame and through the inverse nominal inertia."""
+    from bench.controllers.stacks import ForceQPL1Controller
+
+    seen = []
+
+    class Spy(ForceQPL1Controller):
+        def _applied(self, f, w):
+            before = self.l1.x_hat.copy()
+            super()._applied(f, w)
+            seen.append((self.l1.x_hat - before, f.copy(), w.copy(), self.r.copy(), self.kin.rot.copy(),
+                         self.scan_map is not None))
+
+    for sensing in ("", SCAN):
+        seen.clear()
+        ctrl = Spy(privileged=True)
+        _episode(tmp_path, sensing, duration=1.2, controller=ctrl)
+        m = ctrl.robot.mass_kg
+        inertia = np.asarray(ctrl.wrench.inertia)
+        moved = 0
+        for dx, f, w, r, rot, has_scan in seen[::25]:
+            if not has_scan:
+                assert not dx.any()
+                continue
+            fr = f.reshape(-1, 3)
+            force = np.zeros(3)
+            moment = np.zeros(3)
+            for k in range(len(fr)):
+                force += fr[k]
+                moment += np.cross(r[k], fr[k])
+            acc = np.concatenate([(force - w[:3]) / m, np.linalg.solve(inertia, rot.T @ (moment - w[3:]))])
+            np.testing.assert_allclose(dx, ctrl.l1.k_u @ acc, rtol=1e-9, atol=1e-12)
+            moved += bool(np.abs(acc).max() > 1e-3)
+        assert moved > 0 if sensing else moved == 0    # on a scan the QP falls short of the wrench at times

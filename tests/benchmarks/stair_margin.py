@@ -13,6 +13,12 @@ in 12 variants: three speeds (0.2, 0.25, 0.3 m/s) times four starts
   a seed of its own (without noise the scenarios have no random draw, and the
   seed alone changes nothing).
 
+With ``--all`` three more cases run, in the same four starts: a shallower flight
+(``flight-8cm-35cm``: four 8 cm x 35 cm stairs up, a landing, four down, bar on pitch
+atan(0.08 / 0.35) = 12.9 degrees, the slope; the flight a new user tried), the same with an
+unknown 6 kg load, and the stepping stones of ``terrain/stepping-stones-scan`` at 0.35 m/s
+where the three "speeds" are the gaps 0.10, 0.12 and 0.15 m (criteria: no fall, 2.8 m).
+
 Every criterion is the scenario's own (no fall, 4 m travelled, pitch within the
 18.4 degree stair slope); only the duration grows for the slower speeds so that
 the same 4 m are reachable: ``1 + 15 * 0.3 / v`` s (16 s at 0.3 m/s, as bundled).
@@ -22,6 +28,7 @@ criterion (value against limit, or when it fell), then the pass count per case.
     python tests/benchmarks/stair_margin.py [--controller force-qp-l1] [--param K=V ...] [--workers 2]
     python tests/benchmarks/stair_margin.py --param scan_descent_height_m=0      # as before the descent height
     python tests/benchmarks/stair_margin.py --case stairs-10cm-scan --speeds 0.3
+    python tests/benchmarks/stair_margin.py --all                                # 60 variants, 3 min
 
 ``--param`` values are read as YAML, like ``bench run --controller-param``.
 """
@@ -159,14 +166,15 @@ def main() -> int:
         with ProcessPoolExecutor(max_workers=a.workers) as ex:
             results = list(ex.map(run_variant, [(p, a.controller, params) for _, p in jobs]))
     print(f"controller {a.controller}, params {params or '{}'}")
-    counts: dict[str, list[int]] = {c: [0, 0] for c in cases}
+    counts: dict[str, list[int]] = {c: [0, 0, 0] for c in cases}
     for (case, _), r in zip(jobs, results):
         counts[case][0] += r["passed"]
         counts[case][1] += 1
+        counts[case][2] += r["why"].startswith("fell")
         print(f"  {r['name']:<44} {'pass' if r['passed'] else 'FAIL'}  pitch {r['pitch']:5.1f} deg  "
               f"{r['why']}")
-    for case, (n, m) in counts.items():
-        print(f"{case}: {n}/{m} passed")
+    for case, (n, m, falls) in counts.items():
+        print(f"{case}: {n}/{m} passed, {falls} fell")
     return 0
 
 
