@@ -250,6 +250,41 @@ def test_descent_height_ramp_endpoints():
     assert descent_height(math.radians(1.0), 0.06, 0.0, full) > 0.0           # start 0: any nose-down pitch
 
 
+@pytest.mark.parametrize("rise,run", [(0.08, 0.35), (0.10, 0.30)])
+def test_scan_slope_of_a_staircase_is_about_rise_over_run_at_every_phase(rise, run):
+    from bench.controllers.stacks import scan_slope, scan_slope_weights
+
+    # the bundled scan's grid along the heading (1.1 m, 2 cm, 10 cm ahead), 26 rows across
+    x = np.tile(np.arange(-0.45, 0.65 + 1e-9, 0.02)[:, None], (1, 26))
+    w = scan_slope_weights(x)
+    for phase in np.arange(0.0, run, 0.01):
+        h = np.floor((x + phase) / run) * rise
+        s = scan_slope(h, x, w)
+        assert 0.9 * rise / run < s < 1.1 * rise / run
+        assert s == pytest.approx(np.polyfit(x.ravel(), h.ravel(), 1)[0], abs=1e-12)
+        assert scan_slope(-h, x, w) == pytest.approx(-s)          # the flight down
+        # dropouts are left out: the slope of the points left
+        hn = h.copy()
+        hn[:5] = np.nan
+        assert scan_slope(hn, x, w) == pytest.approx(np.polyfit(x[5:].ravel(), h[5:].ravel(), 1)[0], abs=1e-12)
+    assert scan_slope(np.full(x.shape, np.nan), x, w) == 0.0
+    assert scan_slope(0.3 + 0.0 * x, x, w) == pytest.approx(0.0, abs=1e-12)   # level, at any height
+
+
+def test_bound_pitch_keeps_the_desired_pitch_between_level_and_the_scaled_slope():
+    from bench.controllers.stacks import bound_pitch
+
+    r = math.radians
+    assert bound_pitch(r(14.0), r(12.9), 0.8) == pytest.approx(r(0.8 * 12.9))    # down a flight: clipped
+    assert bound_pitch(r(-14.0), r(-12.9), 0.8) == pytest.approx(r(-0.8 * 12.9))  # up a flight
+    assert bound_pitch(r(6.0), r(12.9), 0.8) == r(6.0)          # inside the bound: unchanged
+    assert bound_pitch(r(-6.0), r(-12.9), 0.8) == r(-6.0)
+    assert bound_pitch(r(-10.0), r(8.0), 0.8) == 0.0             # plane nose up, terrain ahead down: level
+    assert bound_pitch(r(10.0), 0.0, 0.8) == 0.0                 # level terrain: level trunk
+    assert bound_pitch(r(10.0), r(-3.0), math.inf) == r(10.0)    # inf: no bound
+    assert bound_pitch(r(-10.0), r(3.0), math.inf) == r(-10.0)
+
+
 def _recording(**params):
     """A force-qp-l1 (true state) recording, per tick, the commanded height above the ground plane's
     nominal and the low-passed desired pitch."""
@@ -278,8 +313,10 @@ def test_trunk_stands_taller_only_while_the_stance_plane_pitches_nose_down(tmp_p
     start, full = math.radians(5.0), math.radians(14.0)
     # down one 10 cm step with the scan: the fitted plane pitches nose down and the trunk is raised by the
     # ramp of that pitch, tick by tick; up the same step it is never raised
+    # (without the bound on the scan's mean slope: a single step is no flight, and over the 1.1 m scan
+    # its mean slope is about 1.5 x 0.10 / 1.1 m, 7.8 deg, times scan_slope_factor)
     for text, descending in ((STEP_DOWN, True), (ONE_STEP, False)):
-        ctrl = _recording()
+        ctrl = _recording(scan_slope_factor=math.inf)
         ep = _episode(tmp_path, sensing, duration=3.5, controller=ctrl, text=text)
         assert ep.status == "completed", ep.reason
         lift = np.array([r[0] for r in ctrl.rows])
@@ -307,3 +344,66 @@ def test_descent_height_changes_nothing_without_a_scan(tmp_path):
         assert all(r[1] is None for r in ctrl.rows)
     assert np.array_equal(runs[0][0], runs[1][0])
     assert runs[0][1] == runs[1][1]
+
+
+# ------------------------------------------------------------------ scan gains, L1 applied input
+
+SCAN = "sensing:\n  height_scan: {size: [1.1, 0.5], resolution: 0.02, offset: [0.1, 0.0]}"
+
+
+def test_scan_attitude_gains_and_the_l1_reference_model_follow_them(tmp_path):
+    from bench.controllers.stacks import ForceQPL1Controller
+
+    blind, scan = ForceQPL1Controller(privileged=True), ForceQPL1Controller(privileged=True)
+    _episode(tmp_path, "", duration=0.5, controller=blind)
+    _episode(tmp_path, SCAN, duration=0.5, controller=scan)
+    p = scan.params
+    np.testing.assert_array_equal(blind.wrench.kp_rot, p["kp_rot"])
+    np.testing.assert_array_equal(scan.wrench.kp_rot, p["scan_kp_rot"])
+    np.testing.assert_array_equal(scan.wrench.kd_rot, p["scan_kd_rot"])
+    assert scan.wrench._kp[3:6] == list(p["scan_kp_rot"]) and scan.wrench._kd[3:6] == list(p["scan_kd_rot"])
+    for ctrl in (blind, scan):     # the predictor's model is the closed loop of the gains in use
+        kp, kd = ctrl.wrench.kp, ctrl.wrench.kd
+        np.testing.assert_array_equal(ctrl.l1.am[6:12, 0:6], -np.diag(kp))
+        np.testing.assert_array_equal(ctrl.l1.am[6:12, 6:12], -np.diag(kd))
+    # the next episode starts from the plain gains again
+    scan.reset(scan.robot, scan.dt)
+    np.testing.assert_array_equal(scan.wrench.kp_rot, p["kp_rot"])
+
+
+def test_l1_applied_input_is_the_wrench_shortfall_and_only_on_a_scan(tmp_path):
+    """The shortfall handed to the predictor, against a plain recomputation: the stance forces'
+    net force and moment about the COM minus the desired wrench, over the nominal mass, and the
+    moment's part turned into the body frame and through the inverse nominal inertia."""
+    from bench.controllers.stacks import ForceQPL1Controller
+
+    seen = []
+
+    class Spy(ForceQPL1Controller):
+        def _applied(self, f, w):
+            before = self.l1.x_hat.copy()
+            super()._applied(f, w)
+            seen.append((self.l1.x_hat - before, f.copy(), w.copy(), self.r.copy(), self.kin.rot.copy(),
+                         self.scan_map is not None))
+
+    for sensing in ("", SCAN):
+        seen.clear()
+        ctrl = Spy(privileged=True)
+        _episode(tmp_path, sensing, duration=1.2, controller=ctrl)
+        m = ctrl.robot.mass_kg
+        inertia = np.asarray(ctrl.wrench.inertia)
+        moved = 0
+        for dx, f, w, r, rot, has_scan in seen[::25]:
+            if not has_scan:
+                assert not dx.any()
+                continue
+            fr = f.reshape(-1, 3)
+            force = np.zeros(3)
+            moment = np.zeros(3)
+            for k in range(len(fr)):
+                force += fr[k]
+                moment += np.cross(r[k], fr[k])
+            acc = np.concatenate([(force - w[:3]) / m, np.linalg.solve(inertia, rot.T @ (moment - w[3:]))])
+            np.testing.assert_allclose(dx, ctrl.l1.k_u @ acc, rtol=1e-9, atol=1e-12)
+            moved += bool(np.abs(acc).max() > 1e-3)
+        assert moved > 0 if sensing else moved == 0    # on a scan the QP falls short of the wrench at times

@@ -190,3 +190,48 @@ def test_constant_uncertainty_is_estimated_in_a_few_samples_with_the_documented_
     assert est[1] == pytest.approx(sigma, rel=0.03)
     assert est[-1] == pytest.approx(np.exp(-POLE * TS) * sigma, rel=1e-4)
     assert -block.u[0] == pytest.approx(np.exp(-POLE * TS) * sigma, rel=1e-3)   # filtered input caught up
+
+
+# ------------------------------------------------------------------ applied input, new reference model
+
+def _block(am=None):
+    am = np.array([[0.0, 1.0], [-100.0, -20.0]]) if am is None else am
+    bm = np.array([[0.0], [1.0]])
+    return L1Adaptive(am, bm, dt=0.002, bandwidth=40.0, predictor_pole=5.0, u_max=3.0)
+
+
+def test_applied_input_advances_the_predictor_like_the_ode_with_that_input():
+    """``add_applied(du)`` after ``update(x)``: the prediction is the exact one-period solution of
+    ``xh_dot = As (xh - x) + Am x + Bm (u + du) + sigma_h`` (x, u, du, sigma_h held), here checked by
+    integrating that ODE numerically (scipy.integrate.solve_ivp), with u clipped (u_max) as in a windup."""
+    from scipy.integrate import solve_ivp
+
+    blk = _block()
+    blk.update(np.array([0.0, 0.0]))
+    x = np.array([0.03, -0.2])
+    xh0 = blk.x_hat.copy()
+    u = blk.update(x).copy()
+    assert abs(u[0]) == pytest.approx(3.0)          # clipped: the case the correction is for
+    du = np.array([-1.7])
+    blk.add_applied(du)
+    sigma_h = blk.sigma_hat                         # from x_tilde = xh0 - x
+    a_s = -blk.a * np.eye(2)
+
+    def rhs(_t, xh):
+        return a_s @ (xh - x) + blk.am @ x + blk.bm @ (u + du) + sigma_h
+
+    sol = solve_ivp(rhs, (0.0, blk.dt), xh0, rtol=1e-12, atol=1e-14)
+    np.testing.assert_allclose(blk.x_hat, sol.y[:, -1], rtol=0, atol=1e-10)
+
+
+def test_new_reference_model_acts_like_a_block_built_with_it():
+    am2 = np.array([[0.0, 1.0], [-400.0, -40.0]])
+    changed, built = _block(), _block(am2)
+    changed.set_am(am2)
+    rng = np.random.default_rng(3)
+    for _ in range(200):
+        x = rng.normal(scale=0.05, size=2)
+        np.testing.assert_array_equal(changed.update(x), built.update(x))
+        np.testing.assert_array_equal(changed.x_hat, built.x_hat)
+    with pytest.raises(ValueError, match="Hurwitz"):
+        changed.set_am(np.array([[0.0, 1.0], [100.0, -20.0]]))

@@ -141,6 +141,24 @@ class L1Adaptive:
         self.x_hat += self._tmp_n
         return self.u
 
+    def set_am(self, am: np.ndarray) -> None:
+        """Replace the reference model's ``Am`` (e.g. the baseline's gains changed); the state is kept."""
+        am = np.asarray(am, dtype=float)
+        if am.shape != self.am.shape:
+            raise ValueError(f"am must be {self.am.shape}, got {am.shape}")
+        if np.max(np.linalg.eigvals(am).real) >= 0.0:
+            raise ValueError("am must be Hurwitz (the reference model must be stable)")
+        a_s = -self.a * np.eye(self.n)
+        ad = np.exp(-self.a * self.dt) * np.eye(self.n)
+        phi = np.linalg.solve(a_s, ad - np.eye(self.n))
+        self.am = am
+        self.k_x = ad + phi @ (am - a_s)
+
+    def add_applied(self, du: np.ndarray) -> None:
+        """The input applied over the coming period differs from the last ``u`` by ``du`` (m,)
+        (e.g. an actuator or force limit cut it): advance the predictor with ``u + du``."""
+        self.x_hat += self.k_u @ du
+
     @property
     def sigma_matched(self) -> np.ndarray:
         """Matched estimate ``pinv(Bm) sigma_h`` from the last update (allocates; diagnostics)."""
