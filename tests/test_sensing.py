@@ -497,3 +497,32 @@ def test_a_controller_cannot_change_what_it_is_shown_next(write_scenario, load_o
     for a, b in zip(vandal.rows, honest.rows):
         for key in ("height_scan", "foot_force", "joint_torque"):
             np.testing.assert_array_equal(a[key], b[key])
+
+
+ONE_STEP_RUNOUT = """
+    name: scan-runout
+    duration: 0.1
+    terrain:
+      - stairs: {start: 0.45, steps: 1, rise: 0.10, run: 0.30, direction: up}
+"""
+
+
+def test_rays_read_a_long_run_out_box_whatever_the_batch_origin(write_scenario, load_one):
+    """A 30 m run-out box beyond one step, read from batch origins that are not above it: the batch
+    of MuJoCo 3.3's mj_multiRay read the ground plane 1.6 m below it there, so on 3.3 and 3.4 every
+    point is cast on its own. Both paths (the one this MuJoCo uses in ``cast``, and the per-point
+    one) against the exact height query of the terrain."""
+    sc = load_one(write_scenario(ONE_STEP_RUNOUT))
+    world = build_world(sc)
+    rng = np.random.default_rng(11)
+    xs, ys = rng.uniform(-0.5, 2.5, 400), rng.uniform(-0.8, 0.8, 400)
+    exact = world.terrain.height_at(xs, ys)
+    edge = (np.abs(xs - 0.45) < EDGE_CLEARANCE_M) | (np.abs(xs - 0.75) < EDGE_CLEARANCE_M)
+    rays = TerrainRays(world, len(xs))
+    assert np.any(exact[~edge] > 0.05) and np.any(np.abs(exact[~edge]) < 1e-9)   # both levels are there
+    for cx in (-0.5, 0.3, 0.6, 1.5):
+        batch, each = np.zeros(len(xs)), np.zeros(len(xs))
+        rays.cast(xs, ys, cx, 0.0, 0.0, batch)
+        rays._cast_each(xs, ys, 0.0, each)
+        np.testing.assert_allclose(batch[~edge], exact[~edge], atol=BOX_TOL_M, rtol=0)
+        np.testing.assert_allclose(each[~edge], exact[~edge], atol=1e-9, rtol=0)

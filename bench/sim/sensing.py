@@ -17,7 +17,12 @@ length), a slope to about 1e-7 m, a point right on a step edge may read the rise
 the same model in which the robot (and with it every payload) is parked
 ``PARK_Z_M`` below the lowest terrain, so only terrain geoms can be hit (checked
 per hit as well: anything else reads NaN). Terrain is static, so that data is
-posed once.
+posed once. On MuJoCo 3.3 and 3.4 (``mj_multiRay`` without its ``normal`` argument)
+the batch call misses some terrain boxes and reads the plane below them (seen on 3.3:
+a 30 m run-out box read as the ground plane 1.6 m lower, for every ray of a batch
+whose origin is not right above it), so there every point gets its own, exactly
+vertical ``mj_ray`` instead: the same heights as the batch gives on later versions,
+to the rounding of the batch's 10^7 m ray length, at about ten times the cost per scan.
 
 Rate and latency are whole numbers of control ticks (the scenario check says so):
 a scan is taken on ticks ``0, P, 2P, ...`` and is what the controller sees from
@@ -108,26 +113,38 @@ class TerrainRays:
         self.geomid = np.zeros(self.n, dtype=np.int32)
         self.dist = np.zeros(self.n)
         self.hit = np.zeros(self.n, dtype=bool)
+        self._down = np.array([0.0, 0.0, -1.0])
 
     def cast(self, x: np.ndarray, y: np.ndarray, cx: float, cy: float, z_aim: float, out: np.ndarray) -> None:
         """World z of the terrain under points (x, y) (flat arrays of n) into ``out``; NaN where no terrain."""
+        if not _MULTIRAY_NORMAL:   # MuJoCo 3.3 and 3.4: one vertical mj_ray per point (module docstring)
+            self._cast_each(x, y, z_aim, out)
+            return
         oz = z_aim + RAY_ORIGIN_HEIGHT_M
         self.origin[0], self.origin[1], self.origin[2] = cx, cy, oz
         vec = self.vec
         np.subtract(x, cx, out=vec[:, 0])
         np.subtract(y, cy, out=vec[:, 1])
         vec[:, 2] = -RAY_ORIGIN_HEIGHT_M
-        if _MULTIRAY_NORMAL:
-            mujoco.mj_multiRay(self.m, self.d, self.origin, vec.reshape(-1), None, 1, -1, self.geomid, self.dist,
-                               None, self.n, mujoco.mjMAXVAL)
-        else:  # MuJoCo 3.3 and 3.4
-            mujoco.mj_multiRay(self.m, self.d, self.origin, vec.reshape(-1), None, 1, -1, self.geomid, self.dist,
-                               self.n, mujoco.mjMAXVAL)
+        mujoco.mj_multiRay(self.m, self.d, self.origin, vec.reshape(-1), None, 1, -1, self.geomid, self.dist,
+                           None, self.n, mujoco.mjMAXVAL)
         # hit point z = oz + dist * vec_z (vec is not normalised: dist is in units of its length)
         np.multiply(self.dist, -RAY_ORIGIN_HEIGHT_M, out=out)
         out += oz
         np.take(self.is_terrain, self.geomid, out=self.hit)
         out[~self.hit] = np.nan
+
+    def _cast_each(self, x: np.ndarray, y: np.ndarray, z_aim: float, out: np.ndarray) -> None:
+        """``cast`` with one exactly vertical ``mj_ray`` per point, from 100 m above ``z_aim``."""
+        m, d, gid, is_terrain = self.m, self.d, self.geomid[:1], self.is_terrain
+        z_from = float(z_aim) + 100.0
+        pnt = self.origin
+        down = self._down
+        ray = mujoco.mj_ray
+        for k, (px, py) in enumerate(zip(x.tolist(), y.tolist())):
+            pnt[0], pnt[1], pnt[2] = px, py, z_from
+            dist = ray(m, d, pnt, down, None, 1, -1, gid)
+            out[k] = z_from - dist if dist >= 0.0 and is_terrain[gid[0]] else math.nan
 
     def cast_one(self, x: float, y: float, z_from: float) -> tuple[float, int]:
         """One exactly vertical ``mj_ray`` from height ``z_from``: (terrain z or NaN, geom id)."""
