@@ -70,8 +70,9 @@ def test_workers_with_other_versions_are_refused():
     same = code_fingerprint()
     ex.client = StubClient({"tcp://10.0.0.6:1": same})
     ex.check_workers()  # same versions: accepted
-    ex.client = StubClient({"tcp://10.0.0.6:1": dict(same, mujoco="3.3.0")})
-    with pytest.raises(ExecutorError, match=r"tcp://10.0.0.6:1 .*mujoco 3.3.0 there"):
+    other = "3.3.0" if same["mujoco"] != "3.3.0" else "3.4.0"
+    ex.client = StubClient({"tcp://10.0.0.6:1": dict(same, mujoco=other)})
+    with pytest.raises(ExecutorError, match=rf"tcp://10.0.0.6:1 .*mujoco {other} there"):
         ex.check_workers()
     ex.client = StubClient({})
     with pytest.raises(ExecutorError, match="no workers"):

@@ -82,8 +82,12 @@ def test_constraint_buffer_full_is_an_error_with_mujocos_message(tmp_path):
     world = _small_arena(build_world(sc), 40_000)
     ep = run_episode(world, sc, fc._PD(at=10**9), NominalRobot(world.robot))
     assert ep.status == "error"
-    assert ep.reason.startswith("MuJoCo warning at tick 0 (t=0.000-0.002 s): Insufficient arena memory")
-    assert "mjWARN_CNSTRFULL" in ep.reason
+    assert ep.reason.startswith("MuJoCo warning at tick 0 (t=0.000-0.002 s): ")
+    # MuJoCo 3.5 on fill the constraint buffer first; 3.3 and 3.4 run out at the contacts
+    if "mjWARN_CONTACTFULL" in ep.reason:
+        assert "Too many contacts" in ep.reason
+    else:
+        assert "Insufficient arena memory" in ep.reason and "mjWARN_CNSTRFULL" in ep.reason
 
 
 def test_mujoco_fatal_error_mid_episode_is_an_error_with_tick_and_time(tmp_path):

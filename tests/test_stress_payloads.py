@@ -18,6 +18,7 @@ from bench.robot.model import NominalRobot
 from bench.sim.episode import run_episode
 from bench.world.build import build_world
 from bench.world.payloads import PAYLOAD_ARMATURE
+from mjspec_compat import spec_remove
 
 G = 9.81
 
@@ -25,7 +26,7 @@ G = 9.81
 def _held_trunk_model(world, gravity=(0.0, 0.0, 0.0)):
     """The world with the trunk welded to the world (its free joint removed): the trunk is held still."""
     spec = world.spec.copy()
-    spec.delete(spec.body(world.robot.trunk).first_joint())
+    spec_remove(spec, spec.body(world.robot.trunk).first_joint())
     m = spec.compile()
     m.opt.gravity[:] = gravity
     return m, mujoco.MjData(m)

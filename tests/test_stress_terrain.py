@@ -16,6 +16,7 @@ import pytest
 from bench.scenario.schema import STAIR_PRESETS
 from bench.world.build import build_world, export_mjcf
 from bench.world.terrain import rough_heights
+from mjspec_compat import spec_remove
 
 G = 9.81
 INCH_M = 0.0254  # exact by definition of the international inch
@@ -31,7 +32,7 @@ def _probe_model(world, shape: str, half, mass: float, pos, quat=(1.0, 0.0, 0.0,
     ``half``: a ball's radius, or a box's half extents (one number for a cube).
     """
     spec = world.spec.copy()
-    spec.delete(spec.body(world.robot.trunk))
+    spec_remove(spec, spec.body(world.robot.trunk))
     body = spec.worldbody.add_body(name="probe", pos=list(pos), quat=list(quat))
     body.add_freejoint()
     body.explicitinertial = True
