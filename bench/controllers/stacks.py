@@ -159,7 +159,7 @@ class ForceQPController:
         scan (safety window half-width, largest height range in it, farthest shift; ``foothold.py``).
     scan_clearance_m: swing apex above the highest scan point along the swing (m).
     scan_kp_rot, scan_kd_rot: trunk attitude PD while a scan is present (``None``: ``kp_rot`` /
-        ``kd_rot``). Stiffer in pitch (450 against 250 rad/s^2 per rad, damping ratio about 0.94
+        ``kd_rot``). Stiffer in pitch (600 against 250 rad/s^2 per rad, damping ratio about 0.94
         against 0.95): on a flight the trunk overshot the desired pitch by 3 to 5 degrees at the
         top of the climb, against the bar of the stair slope (``stair_margin.py``).
     scan_swing_hold: share of the swing at each end without horizontal motion (``swing.py``).
@@ -227,8 +227,8 @@ class ForceQPController:
         scan_max_roughness_m: float = 0.03,
         scan_max_shift_m: float = 0.12,
         scan_clearance_m: float = 0.07,
-        scan_kp_rot=(250.0, 450.0, 200.0),
-        scan_kd_rot=(30.0, 40.0, 28.0),
+        scan_kp_rot=(250.0, 600.0, 200.0),
+        scan_kd_rot=(30.0, 46.0, 28.0),
         scan_swing_hold: float = 0.15,
         scan_max_tilt_deg: float = 14.0,
         scan_tilt_tau_s: float = 0.4,
