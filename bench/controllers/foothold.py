@@ -151,6 +151,7 @@ class HeightScanMap:
             order = sorted(range(len(keep)), key=lambda n: (cost[n], keep[n]))
             self._search[sign] = [keep[n] for n in order]
         self.heights = np.full(self.shape, np.nan)
+        self.finite = False
         self.safe = np.zeros(self.shape, dtype=bool)
         self.pose = (0.0, 0.0, 1.0, 0.0)        # trunk x, y, cos yaw, sin yaw
         self.shift = {}                          # foot -> last shift (dx, dy), hysteresis
@@ -165,6 +166,7 @@ class HeightScanMap:
         self.pose = (float(trunk_x), float(trunk_y), math.cos(yaw), math.sin(yaw))
         k = self._k_edge
         edge = ~np.isfinite(h)
+        self.finite = not edge.any()             # every point read (no dropout, nothing off the terrain)
         with np.errstate(invalid="ignore"):
             for axis in (0, 1):
                 jump = np.abs(np.diff(h, axis=axis)) > self.max_step_m   # NaN compares False

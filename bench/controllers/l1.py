@@ -61,6 +61,11 @@ from __future__ import annotations
 import numpy as np
 
 
+def _check_hurwitz(am: np.ndarray) -> None:
+    if np.max(np.linalg.eigvals(am).real) >= 0.0:
+        raise ValueError("am must be Hurwitz (the reference model must be stable)")
+
+
 class L1Adaptive:
     """L1 adaptive augmentation for the reference model ``(am, bm)``."""
 
@@ -80,8 +85,7 @@ class L1Adaptive:
         n, m = bm.shape
         if am.shape != (n, n):
             raise ValueError("am must be n x n and bm n x m")
-        if np.max(np.linalg.eigvals(am).real) >= 0.0:
-            raise ValueError("am must be Hurwitz (the reference model must be stable)")
+        _check_hurwitz(am)
         if predictor_pole <= 0.0 or dt <= 0.0:
             raise ValueError("predictor_pole and dt must be > 0")
         self.n, self.m = n, m
@@ -90,9 +94,10 @@ class L1Adaptive:
         a_s = -self.a * np.eye(n)
         ad = np.exp(-self.a * dt) * np.eye(n)   # exp(As Ts) for As = -a I, exactly
         phi = np.linalg.solve(a_s, ad - np.eye(n))
+        self._a_s, self._ad, self._phi = a_s, ad, phi
         self.gain = -np.linalg.solve(phi, ad)                   # sigma_h = gain @ xt
         self.matched = np.linalg.pinv(bm) @ self.gain            # sigma_m = matched @ xt
-        self.k_x = ad + phi @ (am - a_s)                         # see _advance
+        self.k_x = ad + phi @ (am - a_s)                         # see update
         self.k_u = phi @ bm
         self.bandwidth = np.broadcast_to(np.asarray(bandwidth, dtype=float), (m,)).copy()
         self.alpha = 1.0 - np.exp(-self.bandwidth * dt)
@@ -146,18 +151,15 @@ class L1Adaptive:
         am = np.asarray(am, dtype=float)
         if am.shape != self.am.shape:
             raise ValueError(f"am must be {self.am.shape}, got {am.shape}")
-        if np.max(np.linalg.eigvals(am).real) >= 0.0:
-            raise ValueError("am must be Hurwitz (the reference model must be stable)")
-        a_s = -self.a * np.eye(self.n)
-        ad = np.exp(-self.a * self.dt) * np.eye(self.n)
-        phi = np.linalg.solve(a_s, ad - np.eye(self.n))
+        _check_hurwitz(am)
         self.am = am
-        self.k_x = ad + phi @ (am - a_s)
+        self.k_x = self._ad + self._phi @ (am - self._a_s)
 
     def add_applied(self, du: np.ndarray) -> None:
         """The input applied over the coming period differs from the last ``u`` by ``du`` (m,)
         (e.g. an actuator or force limit cut it): advance the predictor with ``u + du``."""
-        self.x_hat += self.k_u @ du
+        np.matmul(self.k_u, du, out=self._tmp_n)
+        self.x_hat += self._tmp_n
 
     @property
     def sigma_matched(self) -> np.ndarray:

@@ -113,14 +113,18 @@ def scan_slope_weights(x) -> np.ndarray:
     return d / ss if ss > 0.0 else np.zeros_like(d)
 
 
-def scan_slope(heights, x, weights=None) -> float:
+def scan_slope(heights, x, weights=None, finite=None) -> float:
     """Least-squares slope dh/dx of the scan ``heights`` over the points' heading offsets ``x``.
 
     Over a scan longer than a few treads of a staircase this is about rise/run whatever the
     phase of the treads under it; non-finite heights are left out (0 with fewer than 2 points left).
+    ``weights``: ``scan_slope_weights(x)``, used when every height is finite (``finite``: whether
+    they are, when the caller knows; else checked here).
     """
     h = np.asarray(heights, dtype=float).ravel()
-    if weights is not None and np.isfinite(h).all():
+    if finite is None:
+        finite = bool(np.isfinite(h).all())
+    if weights is not None and finite:
         return float(weights @ h)
     x = np.asarray(x, dtype=float).ravel()
     ok = np.isfinite(h)
@@ -324,13 +328,7 @@ class ForceQPController:
 
     def _set_rot_gains(self, kp_rot, kd_rot) -> None:
         """Replace the trunk attitude PD gains (roll pitch yaw) from this tick on."""
-        wr = self.wrench
-        wr.kp_rot[:] = kp_rot
-        wr.kd_rot[:] = kd_rot
-        wr.kp[3:6] = wr.kp_rot
-        wr.kd[3:6] = wr.kd_rot
-        wr._kp = [float(v) for v in wr.kp]
-        wr._kd = [float(v) for v in wr.kd]
+        self.wrench.set_rot_gains(kp_rot, kd_rot)
         self._gains_changed()
 
     def _gains_changed(self) -> None:
@@ -430,9 +428,11 @@ class ForceQPController:
             # low-passed because on stairs the plane through the feet jumps by a riser at each landing
             tmax, a = self._max_tilt, self._tilt_alpha
             tilt = self._tilt
-            # pitch target bounded by the scan's mean slope along the heading (about rise/run on a flight)
-            sp = -math.atan(scan_slope(smap.heights, self._scan_x, self._scan_w))
-            tp = bound_pitch(max(-tmax, min(tmax, -math.atan(cyaw * gx + syaw * gy))), sp, self._slope_k)
+            tp = max(-tmax, min(tmax, -math.atan(cyaw * gx + syaw * gy)))
+            if self._slope_k != math.inf:
+                # pitch target bounded by the scan's mean slope along the heading (about rise/run on a flight)
+                sp = -math.atan(scan_slope(smap.heights, self._scan_x, self._scan_w, smap.finite))
+                tp = bound_pitch(tp, sp, self._slope_k)
             tilt[0] += a * (tp - tilt[0])
             tilt[1] += a * (max(-tmax, min(tmax, math.atan(-syaw * gx + cyaw * gy))) - tilt[1])
             # taller on a descent (nose-down plane), ramped in with the low-passed pitch
@@ -691,9 +691,7 @@ class ForceQPL1Controller(ForceQPController):
                              u_max=umax)
         self._l1_chans = np.asarray(chans, dtype=np.int64)
         self._l1_applied = bool(p["scan_l1_applied_input"])
-        self._inv_inertia = np.linalg.inv(np.asarray(self.wrench.inertia, dtype=float))
-        self._w_got = np.zeros(6)
-        self._a_short = np.zeros(6)
+        self._a_short = np.zeros(len(chans))
         self._l1_all = chans == list(range(len(CHANNELS)))
         # Signals: the adaptive accelerations of the chosen channels (m/s^2 or rad/s^2, the L1 input u),
         # and, when z is adapted, the load it stands for: m * u_z / g, the extra mass whose weight the
@@ -733,16 +731,20 @@ class ForceQPL1Controller(ForceQPController):
         none without)."""
         if not self._l1_applied or self.scan_map is None:
             return
-        r = self.r
-        fr = f.reshape(-1, 3)
-        got = self._w_got
-        got[0:3] = fr.sum(axis=0)
-        got[3:6] = np.cross(r, fr).sum(axis=0)
-        d = got - w
-        a = self._a_short
-        a[0:3] = d[0:3] / self.wrench.mass_kg
-        a[3:6] = self._inv_inertia @ (self.kin.rot.T @ d[3:6])   # world torque -> body angular acceleration
-        self.l1.add_applied(a[self._l1_chans] if not self._l1_all else a)
+        fl = f.tolist()
+        fx = fy = fz = tx = ty = tz = 0.0
+        for i, (rx, ry, rz) in enumerate(self.r.tolist()):       # net force, and moment about the COM
+            ax, ay, az = fl[3 * i], fl[3 * i + 1], fl[3 * i + 2]
+            fx += ax; fy += ay; fz += az
+            tx += ry * az - rz * ay; ty += rz * ax - rx * az; tz += rx * ay - ry * ax
+        wl = w.tolist()
+        a = self.wrench.accel_of((fx - wl[0], fy - wl[1], fz - wl[2], tx - wl[3], ty - wl[4], tz - wl[5]))
+        du = self._a_short
+        if self._l1_all:
+            du[:] = a
+        else:
+            du[:] = [a[c] for c in self._l1_chans.tolist()]
+        self.l1.add_applied(du)
 
     def _adapt(self) -> None:
         u = self.l1.update(self.wrench.error_state)

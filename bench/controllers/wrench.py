@@ -70,6 +70,9 @@ class DesiredWrench:
         self._kp = [float(v) for v in self.kp]
         self._kd = [float(v) for v in self.kd]
         self._inertia = [[float(v) for v in row] for row in self.inertia]
+        self._inv_inertia = np.linalg.inv(self.inertia)
+        self._body3 = np.zeros(3)
+        self._ang3 = np.zeros(3)
         self._es = [0.0] * 12
         self._rel = np.zeros((3, 3))
         self._log = np.zeros(3)
@@ -92,6 +95,29 @@ class DesiredWrench:
         self._rot_list = r
         self.error_state[:] = es
         return self.error_state
+
+    def set_rot_gains(self, kp_rot, kd_rot) -> None:
+        """Replace the attitude stiffness and damping (roll pitch yaw) from the next wrench on."""
+        self.kp_rot[:] = kp_rot
+        self.kd_rot[:] = kd_rot
+        self.kp[3:6] = self.kp_rot
+        self.kd[3:6] = self.kd_rot
+        self._kp = [float(v) for v in self.kp]
+        self._kd = [float(v) for v in self.kd]
+
+    def accel_of(self, dw) -> list[float]:
+        """The accelerations (x y z world, roll pitch yaw body) a wrench ``dw`` (F world, T world
+        about the COM) gives the nominal body at the attitude of the last :meth:`update_errors`:
+        ``dF / m`` and ``I^-1 R^T dT``, the inverse of the scaling in :meth:`compute_wrench`."""
+        m = self.mass_kg
+        r = self._rot_list
+        tx, ty, tz = dw[3], dw[4], dw[5]
+        b = self._body3                 # R^T dT
+        b[0] = r[0][0] * tx + r[1][0] * ty + r[2][0] * tz
+        b[1] = r[0][1] * tx + r[1][1] * ty + r[2][1] * tz
+        b[2] = r[0][2] * tx + r[1][2] * ty + r[2][2] * tz
+        ax, ay, az = np.matmul(self._inv_inertia, b, out=self._ang3).tolist()
+        return [dw[0] / m, dw[1] / m, dw[2] / m, ax, ay, az]
 
     def compute_wrench(self, rot=None) -> np.ndarray:
         """Desired wrench (6,) = (F world, T world about the COM) from the last

@@ -89,28 +89,24 @@ def variant_yaml(case: str, v: float, start: str, dx: float, seed: int | None, t
         sensing:
           height_scan: {{size: [1.1, 0.5], resolution: 0.02, offset: [0.1, 0.0]}}
         """)
-        if dx:
-            text += f"initial: {{x: {dx}}}\n"
-        if seed is not None:
-            text += f"seed: {seed}\n" + NOISE
-        return text
-    if case.startswith("flight-8cm"):
-        base = tmp / "flight-8cm-35cm.yaml"
-        base.write_text(FLIGHT8)
-        if case.endswith("load-6kg"):
-            base = tmp / "flight-8cm-35cm-load-6kg.yaml"
-            base.write_text(f"extends: {tmp / 'flight-8cm-35cm.yaml'}\nname: flight-8cm-35cm-load-6kg\n" + LOAD6)
     else:
-        base = ROOT / "scenarios" / "terrain" / f"{case}.yaml"
-    duration = round(1.0 + 15.0 * 0.3 / v, 2)
-    text = textwrap.dedent(f"""\
-    extends: {base}
-    name: {case}-v{v:g}-{start}
-    duration: {duration}
-    commands:
-      - {{at: 0.0}}
-      - {{at: 1.0, vx: {v}}}
-    """)
+        if case.startswith("flight-8cm"):
+            base = tmp / "flight-8cm-35cm.yaml"
+            base.write_text(FLIGHT8)
+            if case.endswith("load-6kg"):
+                base = tmp / "flight-8cm-35cm-load-6kg.yaml"
+                base.write_text(f"extends: {tmp / 'flight-8cm-35cm.yaml'}\nname: flight-8cm-35cm-load-6kg\n" + LOAD6)
+        else:
+            base = ROOT / "scenarios" / "terrain" / f"{case}.yaml"
+        duration = round(1.0 + 15.0 * 0.3 / v, 2)
+        text = textwrap.dedent(f"""\
+        extends: {base}
+        name: {case}-v{v:g}-{start}
+        duration: {duration}
+        commands:
+          - {{at: 0.0}}
+          - {{at: 1.0, vx: {v}}}
+        """)
     if dx:
         text += f"initial: {{x: {dx}}}\n"
     if seed is not None:
@@ -121,23 +117,23 @@ def variant_yaml(case: str, v: float, start: str, dx: float, seed: int | None, t
 def run_variant(args: tuple) -> dict:
     path, controller, params = args
     from bench.execute.job import Job, run_job
+    from bench.report.record import RunRecord
     from bench.scenario import load_scenarios
 
     sc = load_scenarios([path])[0]
-    res = run_job(Job(sc, controller, controller_params=params)).result
-    crit = {c["name"]: c for c in res["criteria"]}
+    rec = RunRecord.from_json(run_job(Job(sc, controller, controller_params=params)).result)
+    crit = {c.name: c for c in rec.criteria}
     why = ""
-    if not res["passed"]:
+    if not rec.passed:
         fall = crit.get("no_fall")
-        if fall is not None and not fall["passed"]:
-            why = f"fell at {fall['first_violation_s']:.2f} s, {res['metrics'].get('distance', float('nan')):.2f} m"
+        if fall is not None and not fall.passed:
+            why = f"fell at {fall.first_violation_s:.2f} s, {rec.metrics.get('distance', float('nan')):.2f} m"
         else:
-            bad = [c for c in res["criteria"] if not c["passed"]]
-            why = "; ".join(f"{c['name']} {c['value']:.3g} (limit {c['limit']:g}) at {c['first_violation_s']:.2f} s"
-                            if c["first_violation_s"] is not None else f"{c['name']} {c['value']:.3g}"
-                            for c in bad) or (res.get("reason") or res["status"])
-    pitch = crit["pitch_error_max_deg"]["value"] if "pitch_error_max_deg" in crit else float("nan")
-    return {"name": sc.name, "passed": bool(res["passed"]), "why": why, "pitch": pitch}
+            why = "; ".join(f"{c.name} {c.value:.3g} (limit {c.limit:g}) at {c.first_violation_s:.2f} s"
+                            if c.first_violation_s is not None else f"{c.name} {c.value:.3g}"
+                            for c in rec.criteria if not c.passed) or (rec.reason or rec.status)
+    pitch = crit["pitch_error_max_deg"].value if "pitch_error_max_deg" in crit else float("nan")
+    return {"name": sc.name, "passed": rec.passed, "why": why, "pitch": pitch}
 
 
 def main() -> int:
